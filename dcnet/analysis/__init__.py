@@ -1,0 +1,1 @@
+"""Assembly, solving and derived results over the netlist."""

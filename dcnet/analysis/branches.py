@@ -1,0 +1,96 @@
+"""The netlist as arrays: one branch per element, grouped by kind.
+
+This is the only place that walks the element records one by one; everything
+after it (topology, assembly, verification, results) works on arrays.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..kinds import KINDS
+from ..netlist import Netlist
+
+__all__ = ["BranchTable", "branch_table", "kind_columns"]
+
+
+@dataclass
+class BranchTable:
+    """Arrays in element order; ``groups`` maps a kind to (positions, columns)."""
+
+    names: list[str]
+    node_names: list[str]
+    a: np.ndarray
+    b: np.ndarray
+    ground: int
+    groups: dict[str, tuple[np.ndarray, dict[str, np.ndarray]]]
+    is_voltage: np.ndarray
+    g: np.ndarray
+    c: np.ndarray
+    e: np.ndarray
+    max_emf: float
+
+    @property
+    def n_nodes(self) -> int:
+        return len(self.node_names)
+
+    @property
+    def n_elements(self) -> int:
+        return len(self.names)
+
+    @property
+    def connecting(self) -> np.ndarray:
+        """Branches that tie their two node potentials together (not pure current sources, not open)."""
+        return self.is_voltage | (self.g != 0)
+
+
+def kind_columns(kind_name: str, elements) -> dict[str, np.ndarray]:
+    """Float columns of the kind's declared properties (NaN where absent)."""
+    kind = KINDS[kind_name]
+    nan = float("nan")
+    return {col: np.array([el.values.get(col, nan) for el in elements], dtype=float) for col in kind.columns}
+
+
+def branch_table(net: Netlist) -> BranchTable:
+    """Build (once per netlist state) the branch arrays of a netlist."""
+    return net.cached("branch_table", lambda: _build(net))
+
+
+def _build(net: Netlist) -> BranchTable:
+    idx = net.node_index
+    els = net.elements
+    n = len(els)
+    a = np.fromiter((idx[el.nodes[0]] for el in els), dtype=np.int64, count=n)
+    b = np.fromiter((idx[el.nodes[1]] for el in els), dtype=np.int64, count=n)
+    by_kind: dict[str, list[int]] = {}
+    for pos, el in enumerate(els):
+        by_kind.setdefault(el.kind, []).append(pos)
+    is_v = np.zeros(n, dtype=bool)
+    g = np.zeros(n)
+    c = np.zeros(n)
+    e = np.zeros(n)
+    groups = {}
+    max_emf = 0.0
+    for kind_name, positions in by_kind.items():
+        pos = np.asarray(positions, dtype=np.int64)
+        cols = kind_columns(kind_name, [els[p] for p in positions])
+        br = KINDS[kind_name].branches(cols)
+        is_v[pos], g[pos], c[pos], e[pos] = br.is_voltage, br.g, br.c, br.e
+        groups[kind_name] = (pos, cols)
+        if "emf" in cols and len(pos):
+            max_emf = max(max_emf, float(np.nanmax(np.abs(cols["emf"]))))
+    return BranchTable(
+        names=[el.name for el in els],
+        node_names=list(idx),
+        a=a,
+        b=b,
+        ground=idx[net.ground],
+        groups=groups,
+        is_voltage=is_v,
+        g=g,
+        c=c,
+        e=e,
+        max_emf=max_emf,
+    )

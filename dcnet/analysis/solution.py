@@ -1,0 +1,176 @@
+"""The result of a solve: potentials, element currents, voltages, powers, extras.
+
+Sign convention (passive, for every element): ``current_A`` flows through the
+element from its first node to its second; ``voltage_V`` is first-node minus
+second-node potential; ``power_W = voltage_V * current_A`` is absorbed power
+(negative = delivering). A discharging cell has negative current and power.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from ..kinds import KINDS
+from ..netlist import Netlist
+from .branches import BranchTable
+
+__all__ = ["Solution", "QuantityError"]
+
+
+class QuantityError(KeyError):
+    """An asked-for quantity names no element or node."""
+
+    def __str__(self) -> str:
+        return str(self.args[0])
+
+
+class Solution:
+    """Node potentials and element results of a solved netlist."""
+
+    def __init__(self, netlist: Netlist, bt: BranchTable, potentials, v, i, balance: dict, warnings: list[str]):
+        self.netlist = netlist
+        self.branches = bt
+        self.potentials = potentials
+        self.v = v
+        self.i = i
+        self.p = v * i
+        self.balance = balance
+        self.warnings = list(warnings)
+        self.checks: list[dict] = []
+        self._extras: dict[str, dict[str, np.ndarray]] | None = None
+        self._states: np.ndarray | None = None
+        self._pos = {n: k for k, n in enumerate(bt.names)}
+
+    # ------------------------------------------------------------ lookups
+    def _element_pos(self, name: str) -> int:
+        try:
+            return self._pos[name]
+        except KeyError:
+            raise QuantityError(_unknown("element", name, self._pos)) from None
+
+    def potential(self, node: str) -> float:
+        """Potential of a node relative to ground, in volts."""
+        try:
+            return float(self.potentials[self.netlist.node_index[node]])
+        except KeyError:
+            raise QuantityError(_unknown("node", node, self.netlist.node_index)) from None
+
+    def current(self, name: str) -> float:
+        """Passive-sign current through an element (first node to second), in amperes."""
+        return float(self.i[self._element_pos(name)])
+
+    def voltage(self, name: str, other: str | None = None) -> float:
+        """An element's voltage (first node minus second), or with two node names their difference."""
+        if other is not None:
+            return self.potential(name) - self.potential(other)
+        return float(self.v[self._element_pos(name)])
+
+    def power(self, name: str) -> float:
+        """Absorbed power of an element in watts (negative = delivering)."""
+        return float(self.p[self._element_pos(name)])
+
+    # ------------------------------------------------------------- extras
+    @property
+    def ctx(self) -> dict:
+        return {"max_emf": self.branches.max_emf}
+
+    def _compute(self) -> None:
+        extras: dict[str, dict[str, np.ndarray]] = {}
+        states = np.empty(len(self.i), dtype=object)
+        for kind_name, (pos, cols) in self.branches.groups.items():
+            kind = KINDS[kind_name]
+            v, i = self.v[pos], self.i[pos]
+            extras[kind_name] = kind.extras(cols, v, i, self.ctx)
+            states[pos] = kind.state(cols, v, i)
+        self._extras, self._states = extras, states
+
+    def extras(self, name: str) -> dict[str, float]:
+        """Kind-specific results of one element (a cell's ``loss_W``, a cable's ``drop_pct``...)."""
+        if self._extras is None:
+            self._compute()
+        k = self._element_pos(name)
+        kind = self.netlist.elements[k].kind
+        pos = self.branches.groups[kind][0]
+        j = int(np.searchsorted(pos, k))
+        return {key: float(arr[j]) for key, arr in self._extras[kind].items()}
+
+    def state(self, name: str) -> str:
+        """A plain word for what the element does: charging, discharging, delivering, absorbing..."""
+        if self._states is None:
+            self._compute()
+        return str(self._states[self._element_pos(name)])
+
+    def element_result(self, name: str) -> dict[str, Any]:
+        k = self._element_pos(name)
+        el = self.netlist.elements[k]
+        out = {
+            "kind": el.kind,
+            "nodes": list(el.nodes),
+            "current_A": float(self.i[k]),
+            "voltage_V": float(self.v[k]),
+            "power_W": float(self.p[k]),
+            "state": self.state(name),
+        }
+        out.update(self.extras(name))
+        return out
+
+    # ---------------------------------------------------------- quantities
+    def quantity(self, spec: str) -> tuple[str, float, str]:
+        """Value of a quantity written as on the command line.
+
+        ``ELEMENT.current``, ``ELEMENT.voltage``, ``ELEMENT.power``,
+        ``NODE.potential``, ``NODE`` (its potential), ``NODE,NODE`` (their
+        difference), or ``ELEMENT.<extra>`` such as ``P1.drop_pct``.
+        Returns (label, value, unit).
+        """
+        spec = spec.strip()
+        if "," in spec:
+            n1, n2 = (s.strip() for s in spec.split(",", 1))
+            return (f"V({n1},{n2})", self.voltage(n1, n2), "V")
+        name, _, attr = spec.rpartition(".")
+        if not name:
+            name, attr = spec, ""
+        if attr in ("current", "voltage", "power") and name in self._pos:
+            unit = {"current": "A", "voltage": "V", "power": "W"}[attr]
+            return (spec, getattr(self, attr)(name), unit)
+        if attr == "potential":
+            return (spec, self.potential(name), "V")
+        if name in self._pos and attr:
+            ex = self.extras(name)
+            if attr in ex:
+                unit = attr.rsplit("_", 1)[-1] if "_" in attr else ""
+                return (spec, ex[attr], {"pct": "%", "ohm": "Ohm"}.get(unit, unit))
+            known = ["current", "voltage", "power"] + list(ex)
+            raise QuantityError(f"{name} has no result '{attr}'; it has: {', '.join(known)}")
+        if spec in self.netlist.node_index:
+            return (f"{spec}.potential", self.potential(spec), "V")
+        if spec in self._pos:
+            raise QuantityError(f"say which result of {spec}: {spec}.current, {spec}.voltage or {spec}.power")
+        raise QuantityError(_unknown("element or node", name if attr else spec, list(self._pos) + list(self.netlist.node_index)))
+
+    # --------------------------------------------------------------- export
+    def to_dict(self) -> dict[str, Any]:
+        """The machine-readable result (the JSON schema of the README)."""
+        net = self.netlist
+        return {
+            "title": net.title,
+            "ground": net.ground,
+            "nodes": {n: {"potential_V": float(self.potentials[k])} for n, k in net.node_index.items()},
+            "elements": {name: self.element_result(name) for name in self.branches.names},
+            "balance": {
+                "power_sum_W": self.balance["power_sum_W"],
+                "kcl_max_residual_A": self.balance["kcl_max_residual_A"],
+                "ok": self.balance["ok"],
+            },
+            "checks": list(self.checks),
+            "warnings": list(self.warnings),
+        }
+
+
+def _unknown(what: str, name: str, known) -> str:
+    from ..language.parser import suggest
+
+    near = suggest(name, known)
+    return f"no {what} named '{name}'" + (f"; did you mean '{near}'?" if near else "")

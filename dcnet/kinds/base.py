@@ -1,0 +1,140 @@
+"""What an element kind is: its property schema, its branch model and its results.
+
+Every kind is one :class:`Kind` instance in one module of this package. The
+language layer reads ``props`` to resolve and validate values; the assembly
+reads :meth:`Kind.branches`; the results layer reads :meth:`Kind.extras` and
+:meth:`Kind.state`. Nothing else in dcnet needs to know a kind by name.
+
+The branch model
+----------------
+Each element is one branch from its first node ``a`` to its second node ``b``,
+with passive-sign current ``i`` (through the element from a to b) and voltage
+``v = V(a) - V(b)``. A linear branch is one of two forms:
+
+* admittance form: ``i = g * v + c`` (resistors; cells and sources with internal
+  resistance as Norton equivalents, ``c = -emf * g``; current sources, ``g = 0``);
+* voltage form: ``v = e`` with ``i`` an extra unknown (ideal sources and links).
+
+``branches`` returns, for all elements of the kind at once (numpy arrays, one
+entry per element), ``is_voltage``, ``g``, ``c`` and ``e``. Because it is plain
+array arithmetic, the same function serves float arrays, batched sample arrays
+and sympy object arrays.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+import numpy as np
+
+from ..errors import ValueRangeError
+from ..units import Dim
+
+__all__ = ["Prop", "Kind", "Branches", "positive", "nonnegative", "finite"]
+
+
+def finite(name: str, x: float) -> None:
+    if not np.isfinite(x):
+        raise ValueRangeError(f"{name}={x} is not a finite number")
+
+
+def positive(name: str, x: float) -> None:
+    finite(name, x)
+    if x <= 0:
+        raise ValueRangeError(f"{name} must be greater than zero, got {x:g}")
+
+
+def nonnegative(name: str, x: float) -> None:
+    finite(name, x)
+    if x < 0:
+        raise ValueRangeError(f"{name} must not be negative, got {x:g}")
+
+
+@dataclass(frozen=True)
+class Prop:
+    """One property of a kind.
+
+    ``form`` is ``"quantity"`` (an expression with a unit of dimension ``dim``),
+    ``"word"`` (one of ``words``, or any word when ``words`` is empty),
+    ``"words"`` (a comma-separated list) or ``"gauge"`` (an AWG number).
+    """
+
+    name: str
+    dim: Dim | None = None
+    form: str = "quantity"
+    required: bool = False
+    default: Any = None
+    words: tuple[str, ...] = ()
+    check: Callable[[str, float], None] | None = finite
+    doc: str = ""
+
+
+@dataclass
+class Branches:
+    """Branch model of all elements of one kind (arrays of equal length)."""
+
+    is_voltage: np.ndarray
+    g: np.ndarray
+    c: np.ndarray
+    e: np.ndarray
+
+
+@dataclass
+class Kind:
+    """An element kind. Subclass and override the methods that differ."""
+
+    name: str
+    doc: str
+    props: dict[str, Prop] = field(default_factory=dict)
+    #: properties whose values become float columns for vectorised use
+    columns: tuple[str, ...] = ()
+    #: True for kinds whose first node is a positive source terminal
+    is_source: bool = False
+    #: nonlinear kinds are solved by Newton iterations (see analysis.newton)
+    nonlinear: bool = False
+
+    def finish(self, values: dict[str, Any]) -> dict[str, Any]:
+        """Check combinations of properties and derive values; return the final dict.
+
+        Raise :class:`~dcnet.errors.InputError` subclasses (without a span; the
+        language layer adds it).
+        """
+        return values
+
+    def branches(self, cols: dict[str, np.ndarray]) -> Branches:
+        raise NotImplementedError
+
+    def extras(self, cols: dict[str, np.ndarray], v: np.ndarray, i: np.ndarray, ctx: dict) -> dict[str, np.ndarray]:
+        """Kind-specific results beside current, voltage and power."""
+        return {}
+
+    def state(self, cols: dict[str, np.ndarray], v: np.ndarray, i: np.ndarray) -> np.ndarray:
+        """A plain word per element: what it is doing."""
+        p = v * i
+        scale = np.maximum(np.abs(v * i).max(initial=0.0), 1e-300)
+        return np.where(np.abs(p) <= 1e-12 * scale, "idle", np.where(p < 0, "delivering", "absorbing"))
+
+
+def admittance(g: np.ndarray, c: Any = 0.0) -> Branches:
+    """Admittance-form branches ``i = g*v + c`` for all elements of a kind."""
+    g = np.asarray(g)
+    c = np.broadcast_to(np.asarray(c, dtype=g.dtype), g.shape).copy()
+    return Branches(is_voltage=np.zeros(g.shape, dtype=bool), g=g, c=c, e=np.zeros(g.shape, dtype=g.dtype))
+
+
+def _is_object(x: Any) -> bool:
+    return isinstance(x, np.ndarray) and x.dtype == object
+
+
+def mixed(is_voltage: np.ndarray, g: np.ndarray, c: np.ndarray, e: np.ndarray) -> Branches:
+    return Branches(is_voltage=np.asarray(is_voltage, dtype=bool), g=g, c=c, e=e)
+
+
+def safe_inverse(r: np.ndarray, use: np.ndarray) -> np.ndarray:
+    """1/r where ``use`` is true, 0 elsewhere (no warnings for the unused entries)."""
+    if _is_object(r):
+        return np.array([1 / x if u else 0 for x, u in zip(r, use)], dtype=object)
+    out = np.zeros(len(r))
+    np.divide(1.0, r, out=out, where=use)
+    return out

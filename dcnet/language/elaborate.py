@@ -1,0 +1,484 @@
+"""Statements to the flat :class:`~dcnet.netlist.Netlist`.
+
+Elaboration resolves every value to an SI float (checking its dimension against
+the element kind's schema), applies parts, follows includes, picks the ground
+and builds the elements. Every error it raises carries the file, line and
+column of what is wrong and the source line itself.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from ..errors import (
+    DcnetError,
+    DimensionError,
+    IncludeError,
+    InputError,
+    LimitError,
+    Span,
+    UnknownNameError,
+    ValueRangeError,
+)
+from ..kinds import KINDS
+from ..kinds.base import Kind
+from ..netlist import Element, Limit, Netlist
+from .expressions import ExpressionProblem, evaluate, names_in
+from .parser import KEYWORDS, Prop, Statement, parse_statements, parse_value, suggest
+from ..units import DIMENSIONLESS, Quantity, dim_name, lookup_unit
+
+__all__ = ["Options", "load", "parse", "LIMIT_RULES"]
+
+#: the `limit` rules the checks layer knows, with their properties
+LIMIT_RULES: dict[str, dict[str, str]] = {
+    "imbalance": {"max": "quantity", "among": "words"},
+    "drop": {"max": "quantity", "from": "word", "to": "word"},
+    "current": {"max": "quantity", "min": "quantity", "of": "words"},
+    "voltage": {"max": "quantity", "min": "quantity", "of": "words", "from": "word", "to": "word"},
+}
+
+_GROUND_NAMES = ("gnd", "GND", "ground", "0")
+
+
+@dataclass
+class Options:
+    """Limits and permissions for reading circuit files (see the README)."""
+
+    max_file_bytes: int = 20_000_000
+    max_elements: int = 2_000_000
+    max_include_depth: int = 16
+    allow_outside: bool = False  # includes outside the top file's folder tree
+
+
+@dataclass
+class _State:
+    net: Netlist
+    options: Options
+    root: Path | None
+    env: dict[str, Quantity] = field(default_factory=dict)
+    parts: dict[str, tuple[str, dict[str, Any], Span]] = field(default_factory=dict)
+    lines: dict[str, list[str]] = field(default_factory=dict)
+    ground_span: Span | None = None
+    const_cache: dict[str, Quantity] = field(default_factory=dict)
+    include_stack: list[Path] = field(default_factory=list)
+
+
+# ------------------------------------------------------------------ entry
+def parse(text: str, file: str = "<text>", options: Options | None = None, *, base_dir: str | os.PathLike | None = None) -> Netlist:
+    """Build a netlist from circuit text. Includes resolve against ``base_dir`` (default: the current folder)."""
+    options = options or Options()
+    root = Path(base_dir).resolve() if base_dir is not None else Path.cwd().resolve()
+    st = _State(Netlist(), options, root)
+    st.net.files.append(file)
+    _run(st, text, file, root)
+    _finish(st)
+    return st.net
+
+
+def load(path: str | os.PathLike, options: Options | None = None) -> Netlist:
+    """Read and elaborate a circuit file (and the files it includes)."""
+    options = options or Options()
+    p = Path(path)
+    text = _read(p, options, None)
+    root = p.resolve().parent
+    st = _State(Netlist(), options, root)
+    st.net.files.append(str(path))
+    st.include_stack.append(p.resolve())
+    _run(st, text, str(path), root)
+    _finish(st)
+    return st.net
+
+
+def _read(p: Path, options: Options, span: Span | None) -> str:
+    try:
+        size = p.stat().st_size
+        if size > options.max_file_bytes:
+            raise LimitError(
+                f"{p} is {size:,} bytes, above the limit of {options.max_file_bytes:,}",
+                span=span,
+                hint="raise it with --max-file-bytes if the file is trusted",
+            )
+        with open(p, "rb") as fh:
+            data = fh.read()
+    except IsADirectoryError:
+        raise InputError(f"{p} is a folder, not a circuit file", span=span) from None
+    except FileNotFoundError:
+        cls = IncludeError if span else InputError
+        raise cls(f"file not found: {p}", span=span) from None
+    except PermissionError:
+        raise InputError(f"cannot read {p}: permission denied", span=span) from None
+    except OSError as exc:
+        raise InputError(f"cannot read {p}: {exc.strerror}", span=span) from None
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        col = exc.start - (data.rfind(b"\n", 0, exc.start) + 1) + 1
+        raise InputError(
+            f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x})",
+            span=Span(str(p), line, col),
+            hint="save the file as UTF-8 text; circuit files are plain text",
+        ) from None
+
+
+# -------------------------------------------------------------- statements
+def _run(st: _State, text: str, file: str, folder: Path) -> None:
+    st.lines[file] = text.splitlines()
+    statements = parse_statements(text, file)
+    handlers = {
+        "element": _element,
+        "let": _let,
+        "part": _part,
+        "ground": _ground,
+        "title": _title,
+        "include": _include,
+        "limit": _limit,
+        "block": _unsupported,
+        "use": _unsupported,
+        "end": _unsupported,
+    }
+    for s in statements:
+        try:
+            if s.what == "include":
+                _include(st, s, file, folder)
+            else:
+                handlers[s.what](st, s, file)
+        except DcnetError as err:
+            if err.span is None:
+                err.with_span(Span(file, s.line, s.column, len(s.args[0]) if s.args else 1), _src(st, file, s.line))
+            elif err.source_line is None:
+                err.source_line = _src(st, err.span.file, err.span.line)
+            raise
+
+
+def _src(st: _State, file: str, line: int) -> str | None:
+    lines = st.lines.get(file)
+    if lines and 0 < line <= len(lines):
+        return lines[line - 1]
+    return None
+
+
+def _title(st, s, file):
+    st.net.title = s.args[0]
+
+
+def _unsupported(st, s, file):
+    raise InputError(
+        f"'{s.what}' statements (reusable blocks) are not supported yet",
+        span=Span(file, s.line, s.column, len(s.what)),
+        hint="write the elements out in full for now",
+    )
+
+
+def _let(st: _State, s: Statement, file: str) -> None:
+    name, raw = s.args
+    (nl, nc), (vl, vc) = s.arg_pos
+    if name in KEYWORDS or name in KINDS:
+        raise InputError(f"'{name}' is a keyword and cannot name a value", span=Span(file, nl, nc, len(name)), hint="pick another name")
+    if lookup_unit(name) is not None:
+        raise InputError(f"'{name}' is a unit and cannot name a value", span=Span(file, nl, nc, len(name)), hint=f"pick another name, e.g. {name}_1")
+    if name in st.env:
+        raise InputError(f"value '{name}' is already defined", span=Span(file, nl, nc, len(name)), hint="each let name is defined once")
+    span = Span(file, vl, vc, len(raw))
+    tree = parse_value(raw, span, _src(st, file, vl))
+    q = _eval(st, tree[1], span)
+    tol = None
+    if tree[2] is not None:
+        t = _eval(st, tree[2], span)
+        if t.dim == DIMENSIONLESS:
+            tol = abs(t.value * q.value)
+        elif t.dim == q.dim:
+            tol = abs(t.value)
+        else:
+            raise DimensionError(
+                f"the tolerance of '{name}' is {dim_name(t.dim)}, expected a percentage or {dim_name(q.dim)}",
+                span=span,
+            )
+    st.env[name] = q
+    st.net.values[name] = (q.value, q.dim, tol)
+    st.net.exprs[("let", name)] = tree
+
+
+def _eval(st: _State, tree, span: Span) -> Quantity:
+    try:
+        return evaluate(tree, st.env, lambda w: suggest(w, st.env))
+    except ExpressionProblem as p:
+        raise p.error_class(
+            p.message,
+            span=Span(span.file, span.line, span.column + p.column - 1, p.length),
+            hint=p.hint,
+        ) from None
+
+
+def _value_span(file: str, p: Prop) -> Span:
+    return Span(file, p.line, p.value_column, len(p.raw))
+
+
+def _resolve_prop(st: _State, kind: Kind, p: Prop, file: str, owner: str) -> Any:
+    spec = kind.props.get(p.key)
+    if spec is None:
+        near = suggest(p.key, list(kind.props) + ["part"])
+        known = ", ".join(kind.props)
+        raise UnknownNameError(
+            f"a {kind.name} has no property '{p.key}'",
+            span=Span(file, p.line, p.column, len(p.key)),
+            hint=(f"did you mean '{near}'? " if near else "") + f"a {kind.name} takes: {known}",
+        )
+    span = _value_span(file, p)
+    if spec.form == "word":
+        word = p.raw.strip()
+        if spec.words and word not in spec.words:
+            low = word.lower()
+            if low in spec.words:
+                return low
+            near = suggest(word, spec.words)
+            raise UnknownNameError(
+                f"'{word}' is not a known {p.key} for a {kind.name}",
+                span=span,
+                hint=(f"did you mean '{near}'? " if near else "") + "one of: " + ", ".join(spec.words),
+            )
+        return word
+    if spec.form == "words":
+        return tuple(w.strip() for w in p.raw.split(",") if w.strip())
+    if spec.form == "gauge":
+        return p.raw.strip()
+    q = _quantity(st, p.raw, span, file)
+    if q.dim != spec.dim:
+        hint = None
+        if q.dim == DIMENSIONLESS:
+            hint = f"add a unit, e.g. {p.key}={p.raw}{_example_unit(spec.dim)}"
+        raise DimensionError(
+            f"{p.key} of {owner} must be {dim_name(spec.dim)}, got {dim_name(q.dim)}",
+            span=span,
+            hint=hint,
+        )
+    if spec.check is not None:
+        try:
+            spec.check(p.key, q.value)
+        except ValueRangeError as err:
+            err.with_span(span)
+            raise
+    return q.value
+
+
+def _example_unit(dim) -> str:
+    from ..units import UNITS
+
+    for sym in ("V", "A", "Ohm", "W", "Ah", "m", "mm2", "degC", "s", "J", "S"):
+        if UNITS[sym].dim == dim:
+            return sym
+    return ""
+
+
+def _quantity(st: _State, raw: str, span: Span, file: str) -> Quantity:
+    q = st.const_cache.get(raw)
+    if q is not None:
+        return q
+    tree = parse_value(raw, span, _src(st, file, span.line))
+    if tree[2] is not None:
+        raise InputError(
+            "a tolerance (±) belongs on a let value",
+            span=span,
+            hint="write: let NAME = VALUE ± 5%, then use NAME here",
+        )
+    q = _eval(st, tree[1], span)
+    if not names_in(tree[1]) - _unit_names(tree[1]):
+        st.const_cache[raw] = q
+    return q
+
+
+def _unit_names(tree) -> set[str]:
+    return {n for n in names_in(tree) if lookup_unit(n) is not None}
+
+
+def _part(st: _State, s: Statement, file: str) -> None:
+    name, kind_name = s.args
+    kind = _kind(st, kind_name, file, s.arg_pos[1])
+    if name in st.parts:
+        raise InputError(f"part '{name}' is already defined", span=Span(file, *s.arg_pos[0], len(name)))
+    values = {}
+    for p in s.props:
+        if p.key == "part":
+            raise InputError("a part cannot use another part", span=Span(file, p.line, p.column, 4))
+        values[p.key] = _resolve_prop(st, kind, p, file, f"part {name}")
+    st.parts[name] = (kind.name, values, Span(file, s.line, s.column, len(name)))
+
+
+def _kind(st: _State, kind_name: str, file: str, pos) -> Kind:
+    kind = KINDS.get(kind_name)
+    if kind is None:
+        near = suggest(kind_name, list(KINDS) + list(KEYWORDS))
+        raise UnknownNameError(
+            f"unknown element kind '{kind_name}'",
+            span=Span(file, pos[0], pos[1], len(kind_name)),
+            hint=(f"did you mean '{near}'? " if near else "") + "kinds: " + ", ".join(KINDS),
+        )
+    return kind
+
+
+def _element(st: _State, s: Statement, file: str) -> None:
+    kind_name, name, a, b = s.args
+    kind = _kind(st, kind_name, file, s.arg_pos[0])
+    net = st.net
+    if net.has_element(name):
+        prev = net.element(name).span
+        raise InputError(
+            f"element name '{name}' is already used (at {prev})",
+            span=Span(file, *s.arg_pos[1], len(name)),
+            hint="element names are unique in a circuit",
+        )
+    values: dict[str, Any] = {}
+    part_prop = None
+    for p in s.props:
+        if p.key == "part":
+            part_prop = p
+            continue
+        if p.key in values:
+            raise InputError(f"property '{p.key}' is given twice", span=Span(file, p.line, p.column, len(p.key)))
+        values[p.key] = _resolve_prop(st, kind, p, file, name)
+    if part_prop is not None:
+        pname = part_prop.raw.strip()
+        part = st.parts.get(pname)
+        if part is None:
+            near = suggest(pname, st.parts)
+            raise UnknownNameError(
+                f"unknown part '{pname}'",
+                span=_value_span(file, part_prop),
+                hint=f"did you mean '{near}'?" if near else "define it first with: part NAME KIND key=value ...",
+            )
+        if part[0] != kind.name:
+            raise InputError(
+                f"part '{pname}' is a {part[0]}, but {name} is a {kind.name}",
+                span=_value_span(file, part_prop),
+            )
+        merged = dict(part[1])
+        merged.update(values)
+        values = merged
+    for spec in kind.props.values():
+        if spec.name not in values:
+            if spec.required:
+                raise InputError(
+                    f"{kind.name} {name} needs {spec.name}= ({spec.doc})",
+                    span=Span(file, *s.arg_pos[1], len(name)),
+                    hint=f"add {spec.name}=... to the line",
+                )
+            if spec.default is not None:
+                values[spec.name] = spec.default
+    try:
+        values = kind.finish(values)
+    except DcnetError as err:
+        err.with_span(Span(file, *s.arg_pos[1], len(name)), _src(st, file, s.line))
+        if err.element is None:
+            err.element = name
+        raise
+    if len(net.elements) >= st.options.max_elements:
+        raise LimitError(
+            f"more than {st.options.max_elements:,} elements",
+            hint="raise the limit with --max-elements if the file is trusted",
+        )
+    net.add(Element(name, kind.name, (a, b), values, Span(file, s.line, s.column, len(kind_name))))
+
+
+def _ground(st: _State, s: Statement, file: str) -> None:
+    node = s.args[0]
+    span = Span(file, *s.arg_pos[0], len(node))
+    if st.net.ground is not None and st.net.ground != node:
+        raise InputError(f"ground is already set to '{st.net.ground}'", span=span, hint="a circuit has one ground statement")
+    st.net.ground = node
+    st.net.ground_rule = "ground statement"
+    st.ground_span = span
+
+
+def _include(st: _State, s: Statement, file: str, folder: Path) -> None:
+    rel = s.args[0]
+    span = Span(file, s.line, s.arg_pos[0][1], len(rel) + 2)
+    if len(st.include_stack) > st.options.max_include_depth:
+        raise LimitError(
+            f"includes nest deeper than {st.options.max_include_depth}",
+            span=span,
+            hint="raise the limit with --max-include-depth if the files are trusted",
+        )
+    target = (folder / rel).resolve()  # resolves symlinks before the check
+    if st.root is not None and not st.options.allow_outside:
+        try:
+            target.relative_to(st.root)
+        except ValueError:
+            raise IncludeError(
+                f"include '{rel}' points outside the circuit's folder",
+                span=span,
+                hint="pass --allow-outside-includes if you trust the file",
+            ) from None
+    if target in st.include_stack:
+        chain = " -> ".join(p.name for p in st.include_stack[st.include_stack.index(target):] + [target])
+        raise IncludeError(f"include cycle: {chain}", span=span, hint="remove one of the includes")
+    text = _read(target, st.options, span)
+    st.include_stack.append(target)
+    st.net.files.append(str(target))
+    try:
+        _run(st, text, str(target), target.parent)
+    finally:
+        st.include_stack.pop()
+
+
+def _limit(st: _State, s: Statement, file: str) -> None:
+    rule = s.args[0]
+    props = LIMIT_RULES.get(rule)
+    if props is None:
+        near = suggest(rule, LIMIT_RULES)
+        raise UnknownNameError(
+            f"unknown limit rule '{rule}'",
+            span=Span(file, *s.arg_pos[0], len(rule)),
+            hint=(f"did you mean '{near}'? " if near else "") + "rules: " + ", ".join(LIMIT_RULES),
+        )
+    values: dict[str, Any] = {}
+    for p in s.props:
+        form = props.get(p.key)
+        if form is None:
+            near = suggest(p.key, props)
+            raise UnknownNameError(
+                f"limit {rule} has no property '{p.key}'",
+                span=Span(file, p.line, p.column, len(p.key)),
+                hint=(f"did you mean '{near}'? " if near else "") + "it takes: " + ", ".join(props),
+            )
+        if form == "quantity":
+            values[p.key] = _quantity(st, p.raw, _value_span(file, p), file)
+        elif form == "words":
+            values[p.key] = tuple(w.strip() for w in p.raw.split(",") if w.strip())
+        else:
+            values[p.key] = p.raw.strip()
+    st.net.limits.append(Limit(rule, values, Span(file, s.line, s.column, len(rule))))
+
+
+# ------------------------------------------------------------------ finish
+def _finish(st: _State) -> None:
+    net = st.net
+    if not net.elements:
+        raise InputError(
+            "the circuit has no elements",
+            span=Span(net.files[0] if net.files else "<text>"),
+            hint="add at least a source or cell and a load",
+        )
+    if net.ground is not None:
+        if net.ground not in net.node_index:
+            near = suggest(net.ground, net.node_index)
+            raise UnknownNameError(
+                f"ground node '{net.ground}' is not a terminal of any element",
+                span=st.ground_span,
+                source_line=_src(st, st.ground_span.file, st.ground_span.line) if st.ground_span else None,
+                hint=f"did you mean '{near}'?" if near else None,
+            )
+        return
+    for cand in _GROUND_NAMES:
+        if cand in net.node_index:
+            net.ground, net.ground_rule = cand, f"no ground statement; picked the node named '{cand}'"
+            return
+    for el in net.elements:
+        if KINDS[el.kind].is_source:
+            net.ground = el.nodes[1]
+            net.ground_rule = f"no ground statement; picked '{el.nodes[1]}', the negative terminal of {el.name}, the first source"
+            return
+    net.ground = net.elements[0].nodes[0]
+    net.ground_rule = f"no ground statement; picked '{net.ground}', the first node in the file"

@@ -1,0 +1,360 @@
+"""Text to statement records, with the grammar in ``grammar/dcnet.lark``.
+
+One LALR parser serves two start symbols: ``file`` (statements, whose property
+values stay raw text) and ``value`` (one expression, parsed on demand by the
+elaborator and cached). A small :class:`lark.Transformer` runs inline with the
+parser, so no parse tree is built.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
+
+from lark import Lark, Token, Transformer
+from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken, VisitError
+
+from ..errors import DcnetError, InputError, Span, SyntaxError, UnknownNameError
+from ..units import Quantity, lookup_unit, suggest_unit
+
+__all__ = [
+    "Prop",
+    "Statement",
+    "parse_statements",
+    "parse_value",
+    "grammar_path",
+    "KEYWORDS",
+]
+
+KEYWORDS = ("title", "let", "part", "ground", "include", "limit", "block", "end", "use")
+
+
+# ----------------------------------------------------------------- records
+@dataclass(frozen=True, slots=True)
+class Prop:
+    """``key=value`` with the value kept as raw text and where each stands."""
+
+    key: str
+    raw: str
+    line: int
+    column: int  # column of the key
+    value_column: int
+
+
+@dataclass(frozen=True, slots=True)
+class Statement:
+    """One statement: ``what`` is a keyword or ``"element"``; ``args`` its words."""
+
+    what: str
+    args: tuple[str, ...]
+    props: tuple[Prop, ...]
+    line: int
+    column: int
+    # (line, column) of each arg, for messages about one word
+    arg_pos: tuple[tuple[int, int], ...] = ()
+
+
+# ------------------------------------------------------------------ grammar
+def grammar_path() -> Path:
+    """Where ``dcnet.lark`` is: packaged beside the code, or in the source tree."""
+    here = Path(__file__).resolve().parent.parent
+    for cand in (here / "grammar" / "dcnet.lark", here.parent / "grammar" / "dcnet.lark"):
+        if cand.is_file():
+            return cand
+    raise FileNotFoundError("grammar/dcnet.lark not found beside the dcnet package")
+
+
+def _pos(tok: Token) -> tuple[int, int]:
+    return (tok.line, tok.column)
+
+
+class _Builder(Transformer):
+    """Builds statement records and expression trees while parsing."""
+
+    # statements ----------------------------------------------------------
+    def file(self, items):
+        return [s for s in items if isinstance(s, Statement)]
+
+    def prop(self, items):
+        key, val = items
+        return Prop(str(key), str(val).rstrip(), key.line, key.column, val.column)
+
+    def _make(self, what, toks, props, first):
+        return Statement(what, tuple(str(t) for t in toks), tuple(props), first.line, first.column, tuple(_pos(t) for t in toks))
+
+    def element(self, items):
+        toks = items[:4]
+        return self._make("element", toks, items[4:], toks[0])
+
+    def title(self, items):
+        tok = items[0]
+        return Statement("title", (str(tok)[1:-1],), (), tok.line, 1, (_pos(tok),))
+
+    def let(self, items):
+        name, raw = items
+        return Statement("let", (str(name), str(raw).rstrip()), (), name.line, 1, (_pos(name), _pos(raw)))
+
+    def part(self, items):
+        return self._make("part", items[:2], items[2:], items[0])
+
+    def ground(self, items):
+        return self._make("ground", items[:1], (), items[0])
+
+    def include(self, items):
+        tok = items[0]
+        return Statement("include", (str(tok)[1:-1],), (), tok.line, 1, (_pos(tok),))
+
+    def limit(self, items):
+        return self._make("limit", items[:1], items[1:], items[0])
+
+    def block(self, items):
+        toks = [t for t in items if isinstance(t, Token)]
+        return self._make("block", toks, (), toks[0])
+
+    def end(self, items):
+        tok = items[0]
+        return Statement("end", (), (), tok.line, tok.column)
+
+    def use(self, items):
+        toks = [t for t in items if isinstance(t, Token)]
+        props = [p for p in items if isinstance(p, Prop)]
+        return self._make("use", toks, props, toks[0])
+
+    # values ---------------------------------------------------------------
+    def value(self, items):
+        return ("value", items[0], items[1] if len(items) > 1 else None)
+
+    def quantity(self, items):
+        tok = items[0]
+        return ("q", _quantity(str(tok)), tok.column, len(tok))
+
+    def name(self, items):
+        tok = items[0]
+        return ("name", str(tok), tok.column, len(tok))
+
+    def call(self, items):
+        fn = items[0]
+        return ("call", str(fn), fn.column, items[1:])
+
+    def add(self, items):
+        return ("add", items[0], items[1])
+
+    def sub(self, items):
+        return ("sub", items[0], items[1])
+
+    def mul(self, items):
+        return ("mul", items[0], items[1])
+
+    def div(self, items):
+        return ("div", items[0], items[1])
+
+    def pow(self, items):
+        return ("pow", items[0], items[1])
+
+    def neg(self, items):
+        return ("neg", items[0])
+
+    def unary(self, items):
+        return items[0]
+
+
+_NUM = re.compile(r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+\-]?\d+)?")
+
+
+class _UnitError(Exception):
+    def __init__(self, unit: str, offset: int):
+        self.unit, self.offset = unit, offset
+
+
+def _quantity(text: str) -> Quantity:
+    m = _NUM.match(text)
+    number = float(m.group(0))
+    rest = text[m.end():]
+    unit = rest.strip()
+    if not unit:
+        return Quantity(number)
+    q = lookup_unit(unit)
+    if q is None:
+        raise _UnitError(unit, len(text) - len(unit))
+    return Quantity(number * q.value, q.dim)
+
+
+@lru_cache(maxsize=1)
+def _parser() -> Lark:
+    return Lark(
+        grammar_path().read_text(encoding="utf-8"),
+        parser="lalr",
+        start=["file", "value"],
+        transformer=_Builder(),
+        propagate_positions=False,
+        maybe_placeholders=False,
+        cache=_cache_file(),
+    )
+
+
+def _cache_file() -> str | bool:
+    """A per-user cache of the parse tables (speeds up start-up); False if none can be had."""
+    import hashlib
+    import os
+    import tempfile
+
+    try:
+        import lark
+
+        text = grammar_path().read_bytes()
+        digest = hashlib.sha256(text + lark.__version__.encode()).hexdigest()[:16]
+        base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+        folder = os.path.join(base, "dcnet")
+        os.makedirs(folder, exist_ok=True)
+        if not os.access(folder, os.W_OK):
+            raise OSError
+        return os.path.join(folder, f"grammar-{digest}.lark-cache")
+    except (OSError, RuntimeError):
+        return os.path.join(tempfile.gettempdir(), "dcnet-grammar.lark-cache") if os.access(tempfile.gettempdir(), os.W_OK) else False
+
+
+# ----------------------------------------------------------- error mapping
+_TERMINAL_WORDS = {
+    "IDENT": "a name",
+    "VALUE": "a value",
+    "LETVALUE": "a value",
+    "STRING": 'a quoted text ("...")',
+    "EQUAL": "'='",
+    "_NL": "the end of the line",
+    "$END": "the end of the file",
+    "LPAR": "'('",
+    "RPAR": "')'",
+    "COMMA": "','",
+    "QUANTITY": "a number",
+    "NAME": "a name",
+    "PLUS": "'+'",
+    "MINUS": "'-'",
+    "STAR": "'*'",
+    "SLASH": "'/'",
+    "CIRCUMFLEX": "'^'",
+}
+
+
+def _describe_expected(expected: set[str]) -> str:
+    words = []
+    for t in sorted(expected):
+        if t.startswith("__ANON") or t in ("CONTINUATION", "COMMENT"):
+            continue
+        w = _TERMINAL_WORDS.get(t, f"'{t.lower()}'" if t.isupper() and len(t) < 10 else t)
+        if w not in words:
+            words.append(w)
+    if not words:
+        return "something else"
+    if len(words) == 1:
+        return words[0]
+    return ", ".join(words[:-1]) + " or " + words[-1]
+
+
+def _statement_context(line_text: str, column: int) -> str | None:
+    """A friendlier reading of where in a statement the parser stopped."""
+    head = line_text[: column - 1].split()
+    if not head:
+        return None
+    first = head[0]
+    if first in KEYWORDS:
+        return None
+    if len(head) == 1:
+        return "an element name after the kind"
+    if len(head) == 2:
+        return "the first node name after the element name"
+    if len(head) == 3:
+        return "the second node name"
+    return "a property written key=value"
+
+
+def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int = 0, col_offset: int = 0) -> DcnetError:
+    lines = text.splitlines()
+    line = getattr(exc, "line", 0) or 0
+    column = getattr(exc, "column", 0) or 0
+    if isinstance(exc, UnexpectedEOF) or line <= 0:
+        line = max(len(lines), 1)
+        column = len(lines[-1]) + 1 if lines else 1
+    src = lines[line - 1] if 0 < line <= len(lines) else ""
+    if isinstance(exc, UnexpectedCharacters):
+        ch = src[column - 1] if column - 1 < len(src) else ""
+        found = f"the character {ch!r}"
+        expected = _describe_expected(set(exc.allowed or ()))
+    elif isinstance(exc, UnexpectedToken):
+        tok = exc.token
+        if tok.type == "$END":
+            found = "the end of the file"
+        elif tok.type == "_NL":
+            found = "the end of the line"
+        else:
+            found = repr(str(tok))
+        expected = _describe_expected(set(exc.accepts or exc.expected or ()))
+    else:
+        found = "the end of the text"
+        expected = _describe_expected(set(getattr(exc, "expected", ()) or ()))
+    hint = None
+    if line_offset == 0 and col_offset == 0:
+        ctx = _statement_context(src, column)
+        if ctx:
+            expected = ctx
+        words = src.split()
+        if words and words[0] not in KEYWORDS and len(words) >= 1:
+            pass
+    if "'='" in expected and "a value" not in expected:
+        hint = "properties are written key=value, e.g. r=4.5mOhm"
+    span = Span(file, line + line_offset, column + col_offset, 1)
+    return SyntaxError(f"found {found}, expected {expected}", span=span, hint=hint, source_line=src)
+
+
+# ------------------------------------------------------------------ entry
+def parse_statements(text: str, file: str = "<text>") -> list[Statement]:
+    """Parse a whole circuit text into statements (values kept raw)."""
+    if not text.endswith("\n"):
+        text += "\n"
+    try:
+        return _parser().parse(text, start="file")
+    except UnexpectedInput as exc:
+        raise _syntax_error(exc, text, file) from None
+    except VisitError as exc:  # pragma: no cover - transformer bugs surface as ours
+        raise InputError(f"could not read the file: {exc.orig_exc}", span=Span(file)) from None
+
+
+@lru_cache(maxsize=65536)
+def _parse_value_cached(raw: str):
+    return _parser().parse(raw, start="value")
+
+
+def parse_value(raw: str, span: Span, source_line: str | None = None):
+    """Parse one raw value into an expression tree ``("value", expr, tolerance_or_None)``.
+
+    ``span`` is where the value starts in its file; error columns are mapped into it.
+    """
+    try:
+        return _parse_value_cached(raw)
+    except UnexpectedInput as exc:
+        err = _syntax_error(exc, raw, span.file, span.line - 1, span.column - 1)
+        err.source_line = source_line
+        err.message = err.message.replace("the end of the file", "the end of the value")
+        raise err from None
+    except VisitError as exc:
+        orig = exc.orig_exc
+        if isinstance(orig, _UnitError):
+            suggestion = suggest_unit(orig.unit)
+            # locate the unit inside the raw value
+            col = raw.find(orig.unit)
+            err_span = Span(span.file, span.line, span.column + max(col, 0), len(orig.unit))
+            hint = f"did you mean '{suggestion}'?" if suggestion else "known units include V, A, Ohm, mOhm, W, Ah, m, mm2, degC, %"
+            raise UnknownNameError(f"unknown unit '{orig.unit}'", span=err_span, hint=hint, source_line=source_line) from None
+        raise
+
+
+def suggest(word: str, choices) -> str | None:
+    """The nearest of ``choices`` to a misspelt ``word``, or None."""
+    choices = list(choices)
+    low = {c.lower(): c for c in choices}
+    if word.lower() in low:
+        return low[word.lower()]
+    close = difflib.get_close_matches(word.lower(), list(low), n=1, cutoff=0.6)
+    return low[close[0]] if close else None

@@ -1,0 +1,121 @@
+"""The flat netlist: the one data structure every layer shares.
+
+Upstream (the language layer) builds it; downstream (topology, assembly,
+solving, checks, presentation) only reads it. It knows nothing of syntax and
+nothing of matrices.
+
+Element values are resolved SI floats (Celsius for temperature) or words,
+already validated by the element kind. Node names map to consecutive indices in
+order of first appearance, so arrays built from the netlist are reproducible.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+from .errors import Span
+
+__all__ = ["Element", "Limit", "Netlist"]
+
+
+@dataclass(frozen=True, slots=True)
+class Element:
+    """One two-terminal element: a cell, cable, load ...
+
+    ``nodes`` is (first, second); for sources the first node is the positive
+    terminal. ``values`` holds the resolved properties, including ones the kind
+    derived (a cable's ``r``).
+    """
+
+    name: str
+    kind: str
+    nodes: tuple[str, str]
+    values: dict[str, Any]
+    span: Span = Span()
+
+    def get(self, key: str, default: Any = None) -> Any:
+        return self.values.get(key, default)
+
+
+@dataclass(frozen=True, slots=True)
+class Limit:
+    """A ``limit`` statement, kept for the checks layer."""
+
+    rule: str
+    values: dict[str, Any]
+    span: Span = Span()
+
+
+@dataclass
+class Netlist:
+    """Nodes, elements, ground and limits of one circuit.
+
+    Build it with :meth:`add` (the language layer does); read it anywhere.
+    """
+
+    title: str = ""
+    ground: str | None = None
+    ground_rule: str = ""
+    elements: list[Element] = field(default_factory=list)
+    limits: list[Limit] = field(default_factory=list)
+    values: dict[str, tuple[float, Any, float | None]] = field(default_factory=dict)
+    #: expression trees of named values (and of properties that use them), for studies
+    exprs: dict[tuple[str, str], Any] = field(default_factory=dict)
+    files: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    node_index: dict[str, int] = field(default_factory=dict)
+    _by_name: dict[str, int] = field(default_factory=dict, repr=False)
+    _cache: dict[str, Any] = field(default_factory=dict, repr=False)
+
+    # ------------------------------------------------------------------ build
+    def add(self, element: Element) -> None:
+        """Append an element; its name must be new."""
+        if element.name in self._by_name:
+            raise ValueError(f"duplicate element name {element.name!r}")
+        self._by_name[element.name] = len(self.elements)
+        self.elements.append(element)
+        idx = self.node_index
+        for n in element.nodes:
+            if n not in idx:
+                idx[n] = len(idx)
+        self._cache.clear()
+
+    def add_node(self, name: str) -> int:
+        if name not in self.node_index:
+            self.node_index[name] = len(self.node_index)
+            self._cache.clear()
+        return self.node_index[name]
+
+    # ------------------------------------------------------------------- read
+    @property
+    def nodes(self) -> list[str]:
+        return list(self.node_index)
+
+    def element(self, name: str) -> Element:
+        try:
+            return self.elements[self._by_name[name]]
+        except KeyError:
+            raise KeyError(name) from None
+
+    def has_element(self, name: str) -> bool:
+        return name in self._by_name
+
+    def element_position(self, name: str) -> int:
+        return self._by_name[name]
+
+    def __len__(self) -> int:
+        return len(self.elements)
+
+    def cached(self, key: str, build):
+        """Memoise a derived structure until the netlist changes."""
+        if key not in self._cache:
+            self._cache[key] = build()
+        return self._cache[key]
+
+    # ------------------------------------------------------------- analysis
+    def solve(self, **options):
+        """Solve the circuit; see :func:`dcnet.analysis.solve.solve`."""
+        from .analysis.solve import solve
+
+        return solve(self, **options)

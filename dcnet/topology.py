@@ -1,0 +1,177 @@
+"""Topology checks over the branch arrays, naming the culprits.
+
+The connectivity test runs on arrays (``scipy.sparse.csgraph``) so that huge
+networks do not pay for Python graph objects; a networkx graph is built only
+for the few elements involved in a diagnosis, and on request for queries
+(:func:`graph`).
+
+Refused (``TopologyError``):
+
+* floating islands - nodes with no path to ground through elements that tie
+  potentials together (everything but current sources and open switches);
+  an island joined to the rest only by current sources is reported as current
+  sources without a return path;
+* loops made only of ideal sources and links (their currents are undetermined,
+  and their EMFs may contradict each other).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .analysis.branches import BranchTable
+from .errors import TopologyError
+from .netlist import Netlist
+
+__all__ = ["check", "graph", "islands"]
+
+_MAX_LISTED = 12
+
+
+def _names(items, limit=_MAX_LISTED) -> str:
+    items = list(items)
+    text = ", ".join(items[:limit])
+    if len(items) > limit:
+        text += f" and {len(items) - limit} more"
+    return text
+
+
+def islands(bt: BranchTable) -> np.ndarray:
+    """Connected-component label of every node over the connecting branches."""
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    m = bt.connecting
+    n = bt.n_nodes
+    adj = coo_matrix((np.ones(int(m.sum())), (bt.a[m], bt.b[m])), shape=(n, n))
+    _, labels = connected_components(adj, directed=False)
+    return labels
+
+
+def check(net: Netlist, bt: BranchTable) -> list[str]:
+    """Raise :class:`TopologyError` for unsolvable structures; return warnings."""
+    warnings: list[str] = []
+    _floating(net, bt)
+    _ideal_loops(net, bt)
+    self_loops = np.flatnonzero((bt.a == bt.b) & ~bt.is_voltage)
+    if len(self_loops):
+        warnings.append("element(s) with both terminals on one node carry no current: " + _names(bt.names[i] for i in self_loops))
+    return warnings
+
+
+def _floating(net: Netlist, bt: BranchTable) -> None:
+    labels = islands(bt)
+    gl = labels[bt.ground]
+    bad = labels != gl
+    if not bad.any():
+        return
+    floating_nodes = np.flatnonzero(bad)
+    touching = np.flatnonzero(bad[bt.a] | bad[bt.b])
+    names = [bt.names[i] for i in touching]
+    nodes = [bt.node_names[i] for i in floating_nodes]
+    current_only = ~bt.connecting
+    crossing = [bt.names[i] for i in touching if current_only[i] and (bad[bt.a[i]] != bad[bt.b[i]]) and bt.c[i] != 0]
+    n_islands = len(set(labels[floating_nodes].tolist()))
+    if crossing:
+        raise TopologyError(
+            f"current source(s) {_names(crossing)} have no return path: the node(s) {_names(nodes)} "
+            f"connect to the rest of the circuit only through current sources",
+            culprits=tuple(crossing),
+            node=nodes[0],
+            element=crossing[0],
+            hint="add a path for the current (a load or resistor) or use a voltage source",
+        )
+    what = "a floating part" if n_islands == 1 else f"{n_islands} floating parts"
+    raise TopologyError(
+        f"{what} with no path to ground '{net.ground}': node(s) {_names(nodes)}; element(s) {_names(names)}",
+        culprits=tuple(names[:_MAX_LISTED]),
+        node=nodes[0],
+        hint="connect it to the rest of the circuit, or check for a misspelt node name or an open switch",
+    )
+
+
+def _ideal_loops(net: Netlist, bt: BranchTable) -> None:
+    vb = np.flatnonzero(bt.is_voltage)
+    if len(vb) == 0:
+        return
+    for i in vb:
+        if bt.a[i] == bt.b[i]:
+            name = bt.names[i]
+            what = "is shorted on itself" if bt.e[i] != 0 else "joins a node to itself"
+            raise TopologyError(
+                f"{net.element(name).kind} {name} {what} (both terminals on '{bt.node_names[bt.a[i]]}')",
+                culprits=(name,),
+                element=name,
+                hint="an ideal source or link needs two different nodes",
+            )
+    # cycle test on arrays: a forest has edges = nodes - components
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    touched = np.unique(np.concatenate([bt.a[vb], bt.b[vb]]))
+    local = np.searchsorted(touched, np.concatenate([bt.a[vb], bt.b[vb]]))
+    k = len(vb)
+    adj = coo_matrix((np.ones(k), (local[:k], local[k:])), shape=(len(touched), len(touched)))
+    ncomp, _ = connected_components(adj, directed=False)
+    if k <= len(touched) - ncomp:
+        return
+    loop = _find_loop(bt, vb)
+    kinds = {net.element(n).kind for n in loop}
+    emf_sum = _loop_emf(bt, loop)
+    detail = ""
+    if abs(emf_sum) > 0:
+        detail = f"; its EMFs do not add to zero around the loop ({emf_sum:+.6g} V), so they contradict each other"
+    raise TopologyError(
+        f"a loop made only of ideal {'/'.join(sorted(kinds))} elements: {' -> '.join(loop)}{detail}",
+        culprits=tuple(loop),
+        element=loop[0],
+        hint="give one of them an internal resistance r= (cables, fuses and links with r= are not ideal)",
+    )
+
+
+def _find_loop(bt: BranchTable, vb: np.ndarray) -> list[str]:
+    import networkx as nx
+
+    forest = nx.Graph()
+    for i in vb:
+        u, w = int(bt.a[i]), int(bt.b[i])
+        if forest.has_node(u) and forest.has_node(w) and nx.has_path(forest, u, w):
+            path = nx.shortest_path(forest, u, w)
+            names = [forest.edges[p, q]["name"] for p, q in zip(path, path[1:])]
+            return names + [bt.names[i]]
+        forest.add_edge(u, w, name=bt.names[i], index=int(i))
+    return []  # pragma: no cover - only called when a loop exists
+
+
+def _loop_emf(bt: BranchTable, loop: list[str]) -> float:
+    """Sum of EMFs around the loop, signs following the walk; 0 when consistent."""
+    pos = {n: i for i, n in enumerate(bt.names)}
+    idx = [pos[n] for n in loop]
+    # walk: orient each edge so that consecutive edges share nodes
+    first = idx[0]
+    start = int(bt.a[first])
+    cur = start
+    total = 0.0
+    # begin at the node the first edge shares with the last edge
+    last = idx[-1]
+    if cur not in (int(bt.a[last]), int(bt.b[last])):
+        cur = int(bt.b[first])
+    for i in idx:
+        if int(bt.b[i]) == cur:  # walking a <- b means we go from b to a: potential rises by e
+            total += bt.e[i]
+            cur = int(bt.a[i])
+        else:
+            total -= bt.e[i]
+            cur = int(bt.b[i])
+    return float(total)
+
+
+def graph(net: Netlist):
+    """A networkx MultiGraph of the netlist: nodes are node names, edges carry ``name`` and ``kind``."""
+    import networkx as nx
+
+    G = nx.MultiGraph()
+    G.add_nodes_from(net.node_index)
+    for el in net.elements:
+        G.add_edge(el.nodes[0], el.nodes[1], key=el.name, name=el.name, kind=el.kind)
+    return G
