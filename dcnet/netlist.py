@@ -66,6 +66,10 @@ class Netlist:
     notes: list[str] = field(default_factory=list)
     node_index: dict[str, int] = field(default_factory=dict)
     _by_name: dict[str, int] = field(default_factory=dict, repr=False)
+    # node indices and kind groups kept as elements are added (read by analysis.branches)
+    _a: list[int] = field(default_factory=list, repr=False)
+    _b: list[int] = field(default_factory=list, repr=False)
+    _by_kind: dict[str, list[int]] = field(default_factory=dict, repr=False)
     _cache: dict[str, Any] = field(default_factory=dict, repr=False)
 
     # ------------------------------------------------------------------ build
@@ -73,13 +77,23 @@ class Netlist:
         """Append an element; its name must be new."""
         if element.name in self._by_name:
             raise ValueError(f"duplicate element name {element.name!r}")
-        self._by_name[element.name] = len(self.elements)
+        pos = len(self.elements)
+        self._by_name[element.name] = pos
         self.elements.append(element)
         idx = self.node_index
-        for n in element.nodes:
-            if n not in idx:
-                idx[n] = len(idx)
-        self._cache.clear()
+        na, nb = element.nodes
+        if na not in idx:
+            idx[na] = len(idx)
+        if nb not in idx:
+            idx[nb] = len(idx)
+        self._a.append(idx[na])
+        self._b.append(idx[nb])
+        group = self._by_kind.get(element.kind)
+        if group is None:
+            group = self._by_kind[element.kind] = []
+        group.append(pos)
+        if self._cache:
+            self._cache.clear()
 
     def add_node(self, name: str) -> int:
         if name not in self.node_index:
@@ -91,6 +105,10 @@ class Netlist:
     @property
     def nodes(self) -> list[str]:
         return list(self.node_index)
+
+    def indices(self) -> tuple[list[int], list[int], dict[str, list[int]]]:
+        """First-node and second-node indices of every element, and element positions by kind."""
+        return self._a, self._b, self._by_kind
 
     def element(self, name: str) -> Element:
         try:

@@ -62,11 +62,9 @@ def _build(net: Netlist) -> BranchTable:
     idx = net.node_index
     els = net.elements
     n = len(els)
-    a = np.fromiter((idx[el.nodes[0]] for el in els), dtype=np.int64, count=n)
-    b = np.fromiter((idx[el.nodes[1]] for el in els), dtype=np.int64, count=n)
-    by_kind: dict[str, list[int]] = {}
-    for pos, el in enumerate(els):
-        by_kind.setdefault(el.kind, []).append(pos)
+    a_list, b_list, by_kind = net.indices()
+    a = np.array(a_list, dtype=np.int64)
+    b = np.array(b_list, dtype=np.int64)
     is_v = np.zeros(n, dtype=bool)
     g = np.zeros(n)
     c = np.zeros(n)

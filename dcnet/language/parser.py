@@ -78,16 +78,14 @@ class _Builder(Transformer):
     def file(self, items):
         return [s for s in items if isinstance(s, Statement)]
 
-    def prop(self, items):
-        key, val = items
-        return Prop(str(key), str(val).rstrip(), key.line, key.column, val.column)
-
     def _make(self, what, toks, props, first):
-        return Statement(what, tuple(str(t) for t in toks), tuple(props), first.line, first.column, tuple(_pos(t) for t in toks))
+        return Statement(what, tuple(str(t) for t in toks), _props(props), first.line, first.column, tuple(_pos(t) for t in toks))
 
     def element(self, items):
-        toks = items[:4]
-        return self._make("element", toks, items[4:], toks[0])
+        head = items[0]
+        words = head.split()
+        line, col = head.line, head.column
+        return Statement("element", tuple(words), _props(items[1:]), line, col, _word_positions(head, line, col))
 
     def title(self, items):
         tok = items[0]
@@ -119,8 +117,8 @@ class _Builder(Transformer):
         return Statement("end", (), (), tok.line, tok.column)
 
     def use(self, items):
-        toks = [t for t in items if isinstance(t, Token)]
-        props = [p for p in items if isinstance(p, Prop)]
+        toks = [t for t in items if isinstance(t, Token) and t.type == "IDENT"]
+        props = [t for t in items if isinstance(t, Token) and t.type == "PROPS"]
         return self._make("use", toks, props, toks[0])
 
     # values ---------------------------------------------------------------
@@ -159,6 +157,24 @@ class _Builder(Transformer):
 
     def unary(self, items):
         return items[0]
+
+
+_WORD = re.compile(r"\S+")
+_PROP = re.compile(r"([A-Za-z_][A-Za-z0-9_.]*)[ \t]*=[ \t]*((?:[^\s#\\=]+(?:[ \t]+(?![A-Za-z_][A-Za-z0-9_.]*[ \t]*=)[^\s#\\=]+)*))")
+
+
+def _word_positions(tok: Token, line: int, col: int) -> tuple[tuple[int, int], ...]:
+    return tuple((line, col + m.start()) for m in _WORD.finditer(tok))
+
+
+def _props(tokens) -> tuple[Prop, ...]:
+    """Split PROPS tokens into key=value records with their columns."""
+    out = []
+    for tok in tokens:
+        line, col = tok.line, tok.column
+        for m in _PROP.finditer(tok):
+            out.append(Prop(m.group(1), m.group(2), line, col + m.start(1), col + m.start(2)))
+    return tuple(out)
 
 
 _NUM = re.compile(r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+\-]?\d+)?")
