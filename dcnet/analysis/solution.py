@@ -73,8 +73,15 @@ class Solution:
 
     # ------------------------------------------------------------- extras
     @property
+    def system_voltage(self) -> float:
+        """Reference for percentage drops: the highest source EMF, or the span of node
+        potentials when that is larger (a series string of cells)."""
+        span = float(self.potentials.max() - self.potentials.min()) if len(self.potentials) else 0.0
+        return max(self.branches.max_emf, span)
+
+    @property
     def ctx(self) -> dict:
-        return {"max_emf": self.branches.max_emf}
+        return {"max_emf": self.branches.max_emf, "system_voltage": self.system_voltage}
 
     def _compute(self) -> None:
         extras: dict[str, dict[str, np.ndarray]] = {}

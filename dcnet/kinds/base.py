@@ -93,6 +93,8 @@ class Kind:
     is_source: bool = False
     #: nonlinear kinds are solved by Newton iterations (see analysis.newton)
     nonlinear: bool = False
+    #: the word for a non-source element that carries current
+    busy_word: str = "conducting"
 
     def finish(self, values: dict[str, Any]) -> dict[str, Any]:
         """Check combinations of properties and derive values; return the final dict.
@@ -110,10 +112,18 @@ class Kind:
         return {}
 
     def state(self, cols: dict[str, np.ndarray], v: np.ndarray, i: np.ndarray) -> np.ndarray:
-        """A plain word per element: what it is doing."""
-        p = v * i
-        scale = np.maximum(np.abs(v * i).max(initial=0.0), 1e-300)
-        return np.where(np.abs(p) <= 1e-12 * scale, "idle", np.where(p < 0, "delivering", "absorbing"))
+        """A plain word per element: what it is doing.
+
+        Sources say delivering or absorbing (by the sign of their power); other
+        kinds say conducting; any element with (next to) no current is idle.
+        """
+        scale = max(float(np.abs(i).max(initial=0.0)), 1e-300)
+        idle = np.abs(i) <= 1e-12 * scale
+        if self.is_source:
+            busy = np.where(v * i < 0, "delivering", "absorbing")
+        else:
+            busy = np.full(len(i), self.busy_word, dtype=object)
+        return np.where(idle, "idle", busy)
 
 
 def admittance(g: np.ndarray, c: Any = 0.0) -> Branches:

@@ -89,8 +89,8 @@ class Cable(Kind):
         return admittance(1.0 / cols["r"])
 
     def extras(self, cols, v, i, ctx):
-        emf = ctx.get("max_emf", 0.0)
-        drop = np.abs(v) / emf * 100.0 if emf > 0 else np.full(len(v), np.nan)
+        ref = ctx.get("system_voltage", 0.0)
+        drop = np.abs(v) / ref * 100.0 if ref > 0 else np.full(len(v), np.nan)
         return {"resistance_ohm": cols["r"], "drop_pct": drop}
 
 

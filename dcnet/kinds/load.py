@@ -47,4 +47,5 @@ KIND = Load(
         "vmin": Prop("vmin", VOLTAGE, doc="lowest working voltage"),
     },
     columns=("r", "current", "vmin"),
+    busy_word="drawing",
 )

@@ -1,0 +1,234 @@
+"""The ``dcnet`` command line: a thin face over the Python API.
+
+Exit codes: 0 done and every check passed; 1 done but a check failed; 2 bad
+input or an unsolvable circuit (with ``file:line:col`` and a hint, never a
+traceback).
+
+Only light modules are imported here; commands that need heavy libraries
+(sympy, plotting) import them inside their own functions.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import DcnetError
+
+__all__ = ["main"]
+
+EXIT_OK, EXIT_CHECK_FAILED, EXIT_BAD_INPUT = 0, 1, 2
+
+
+def _options(args):
+    from .language import Options
+
+    return Options(
+        max_file_bytes=args.max_file_bytes,
+        max_elements=args.max_elements,
+        max_include_depth=args.max_include_depth,
+        allow_outside=args.allow_outside_includes,
+    )
+
+
+def _add_input_options(p: argparse.ArgumentParser) -> None:
+    from .language import Options
+
+    d = Options()
+    g = p.add_argument_group("limits on input (raise them only for files you trust)")
+    g.add_argument("--max-file-bytes", type=int, default=d.max_file_bytes, metavar="N", help=f"largest circuit file read (default {d.max_file_bytes:,})")
+    g.add_argument("--max-elements", type=int, default=d.max_elements, metavar="N", help=f"most elements in one circuit (default {d.max_elements:,})")
+    g.add_argument("--max-include-depth", type=int, default=d.max_include_depth, metavar="N", help=f"deepest nesting of includes (default {d.max_include_depth})")
+    g.add_argument("--allow-outside-includes", action="store_true", help="follow includes that leave the circuit file's folder")
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="dcnet",
+        description="Solve DC battery networks exactly from dcnet circuit files (.dcn).",
+        epilog="Exit codes: 0 ok, 1 a check failed, 2 bad input or unsolvable circuit.",
+    )
+    p.add_argument("--version", action="version", version=f"dcnet {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+
+    s = sub.add_parser("solve", help="solve circuit files and print potentials, currents and powers")
+    s.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn)")
+    s.add_argument("--format", choices=("table", "json", "csv", "markdown"), default="table", help="output format (default: table)")
+    s.add_argument(
+        "--show",
+        nargs="+",
+        metavar="QUANTITY",
+        help="print only these: ELEMENT.current, ELEMENT.voltage, ELEMENT.power, NODE.potential, "
+        "ELEMENT.<extra> (e.g. P1.drop_pct), or NODE,NODE for the voltage between two nodes",
+    )
+    _add_input_options(s)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = _parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    try:
+        if args.command == "solve":
+            return _cmd_solve(args)
+    except KeyboardInterrupt:
+        print("dcnet: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return EXIT_OK
+    return EXIT_BAD_INPUT  # pragma: no cover
+
+
+# ------------------------------------------------------------------- solve
+def _solve_one(path: str, options):
+    """Load and solve one file; returns (solution, error)."""
+    from .language import load
+
+    try:
+        net = load(path, options)
+        return net.solve(), None
+    except DcnetError as err:
+        if err.span is None:
+            from .errors import Span
+
+            err.span = Span(path)
+        return None, err
+    except RecursionError:
+        from .errors import LimitError, Span
+
+        return None, LimitError("the file nests too deeply to read", span=Span(path), hint="simplify deeply nested expressions")
+
+
+def _status(sol) -> int:
+    if any(not c.get("ok", True) for c in sol.checks):
+        return EXIT_CHECK_FAILED
+    return EXIT_OK
+
+
+def _cmd_solve(args) -> int:
+    from .report import text as rt
+
+    options = _options(args)
+    files = args.files
+    if len(files) == 1:
+        sol, err = _solve_one(files[0], options)
+        if err is not None:
+            print(err.render(), file=sys.stderr)
+            return EXIT_BAD_INPUT
+        if args.show:
+            return _show(sol, args.show, args.format, files[0])
+        result = sol.to_dict()
+        if args.format == "json":
+            result = {"file": files[0], **result}
+            print(json.dumps(result, indent=2))
+        elif args.format == "csv":
+            sys.stdout.write(rt.csv_text(result))
+        elif args.format == "markdown":
+            print(rt.markdown(result, files[0]))
+        else:
+            print(rt.table(result, files[0]))
+        for w in sol.warnings:
+            print(f"dcnet: warning: {files[0]}: {w}", file=sys.stderr)
+        return _status(sol)
+    return _solve_many(files, options, args)
+
+
+def _show(sol, specs, fmt, file) -> int:
+    from .analysis.solution import QuantityError
+    from .report import text as rt
+
+    values = []
+    for spec in specs:
+        try:
+            values.append(sol.quantity(spec))
+        except QuantityError as exc:
+            print(f"dcnet: {file}: {exc}", file=sys.stderr)
+            return EXIT_BAD_INPUT
+    if fmt == "json":
+        print(json.dumps({"file": file, "values": {label: value for label, value, _ in values}}, indent=2))
+    elif fmt == "csv":
+        print("quantity,value,unit")
+        for label, value, unit in values:
+            print(f"{label},{value!r},{unit}")
+    else:
+        print("\n".join(rt.show_lines(values)))
+    return _status(sol)
+
+
+def _solve_many(files, options, args) -> int:
+    from .report import text as rt
+
+    counts = {"ok": 0, "check failed": 0, "refused": 0}
+    records = []
+    worst = EXIT_OK
+    for path in files:
+        sol, err = _solve_one(path, options)
+        if err is not None:
+            counts["refused"] += 1
+            worst = EXIT_BAD_INPUT
+            print(err.render(), file=sys.stderr)
+            records.append({"file": path, "status": "refused", "error": str(err)})
+            continue
+        status = _status(sol)
+        worst = max(worst, status)
+        word = "ok" if status == EXIT_OK else "check failed"
+        counts[word] += 1
+        rec = {"file": path, "status": word, "elements": len(sol.netlist.elements), "nodes": len(sol.netlist.node_index)}
+        rec["kcl_max_residual_A"] = sol.balance["kcl_max_residual_A"]
+        if args.show:
+            from .analysis.solution import QuantityError
+
+            try:
+                rec["values"] = {label: value for label, value, _ in (sol.quantity(q) for q in args.show)}
+            except QuantityError as exc:
+                rec["values"] = {}
+                rec["error"] = str(exc)
+        if args.format == "json":
+            rec["result"] = sol.to_dict()
+        records.append(rec)
+    summary = f"{len(files)} files: {counts['ok']} ok, {counts['check failed']} failed a check, {counts['refused']} refused"
+    if args.format == "json":
+        print(json.dumps({"files": records, "summary": counts}, indent=2))
+    elif args.format == "csv":
+        import csv
+        import io
+
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        keys = sorted({k for r in records for k in r.get("values", {})})
+        w.writerow(["file", "status", "elements", "nodes", "kcl_max_residual_A", *keys, "error"])
+        for r in records:
+            vals = r.get("values", {})
+            w.writerow([r["file"], r["status"], r.get("elements", ""), r.get("nodes", ""), r.get("kcl_max_residual_A", ""), *[vals.get(k, "") for k in keys], r.get("error", "")])
+        sys.stdout.write(buf.getvalue())
+    else:
+        rows = [["file", "status", "elements", "nodes", "detail"]]
+        for r in records:
+            detail = r.get("error", "")
+            if "values" in r:
+                detail = "; ".join(f"{k} = {v:.6g}" for k, v in r["values"].items())
+            rows.append([r["file"], r["status"], str(r.get("elements", "")), str(r.get("nodes", "")), detail])
+        lines = rt.columns(rows, right={2, 3}, indent="")
+        if args.format == "markdown":
+            print("| file | status | elements | nodes | detail |\n|---|---|---:|---:|---|")
+            for r in rows[1:]:
+                print("| " + " | ".join(r) + " |")
+        else:
+            print("\n".join(lines))
+        print(summary)
+        if args.format == "table":
+            print()
+            print(rt.wrapped_caution())
+    if args.format in ("json", "csv"):
+        print(summary, file=sys.stderr)
+    return worst
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
