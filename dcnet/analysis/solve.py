@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..errors import NumericalError
+from ..errors import NumericalError, TopologyError
 from ..netlist import Netlist
 from .branches import BranchTable, branch_table
 from .mna import System, assemble, solve_system
@@ -77,7 +77,13 @@ def solve(net: Netlist, *, check_topology: bool = True) -> Solution:
     if net.ground_rule and net.ground_rule != "ground statement":
         warnings.append(net.ground_rule)
     if check_topology:
-        warnings += topology.check(net, bt)
+        try:
+            warnings += topology.check(net, bt)
+        except TopologyError as err:
+            name = err.element or (err.culprits[0] if err.culprits else None)
+            if err.span is None and name and net.has_element(name):
+                err.span = net.element(name).span
+            raise
     system = assemble(bt)
     x, factor = solve_system(system)
     if not np.all(np.isfinite(x)):

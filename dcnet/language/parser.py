@@ -9,6 +9,7 @@ parser, so no parse tree is built.
 from __future__ import annotations
 
 import difflib
+import math
 import re
 from dataclasses import dataclass
 from functools import lru_cache
@@ -17,7 +18,7 @@ from pathlib import Path
 from lark import Lark, Token, Transformer
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken, VisitError
 
-from ..errors import DcnetError, InputError, Span, SyntaxError, UnknownNameError
+from ..errors import DcnetError, InputError, Span, SyntaxError, UnknownNameError, ValueRangeError
 from ..units import Quantity, lookup_unit, suggest_unit
 
 __all__ = [
@@ -180,6 +181,11 @@ def _props(tokens) -> tuple[Prop, ...]:
 _NUM = re.compile(r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+\-]?\d+)?")
 
 
+class _NumberError(Exception):
+    def __init__(self, text: str):
+        self.text = text
+
+
 class _UnitError(Exception):
     def __init__(self, unit: str, offset: int):
         self.unit, self.offset = unit, offset
@@ -188,6 +194,8 @@ class _UnitError(Exception):
 def _quantity(text: str) -> Quantity:
     m = _NUM.match(text)
     number = float(m.group(0))
+    if not math.isfinite(number) or number > 1e100:
+        raise _NumberError(m.group(0))
     rest = text[m.end():]
     unit = rest.strip()
     if not unit:
@@ -235,6 +243,8 @@ def _cache_file() -> str | bool:
 # ----------------------------------------------------------- error mapping
 _TERMINAL_WORDS = {
     "IDENT": "a name",
+    "ELEMHEAD": "an element line (KIND NAME NODE NODE)",
+    "PROPS": "a property written key=value",
     "VALUE": "a value",
     "LETVALUE": "a value",
     "STRING": 'a quoted text ("...")',
@@ -286,11 +296,58 @@ def _statement_context(line_text: str, column: int) -> str | None:
     return "a property written key=value"
 
 
+_KEYVAL = re.compile(r"[A-Za-z_][A-Za-z0-9_.]*[ \t]*=")
+
+
+def _diagnose_line(src: str, column: int):
+    """Common mistakes on an element line, in words: (message, column, length, hint) or None."""
+    stripped = src.lstrip()
+    indent = len(src) - len(stripped)
+    if column - 1 > indent or not stripped or stripped.startswith("#"):
+        return None
+    words = stripped.split()
+    if words[0] in KEYWORDS:
+        return None
+    head = []
+    for w in words:
+        if "=" in w:
+            break
+        head.append(w)
+    if len(head) < 4:
+        what = ["the element kind", "an element name", "the first node name", "the second node name"][len(head)]
+        col = indent + 1 + (len(" ".join(head)) if head else 0) + (1 if head else 0)
+        return (
+            f"an element line needs KIND NAME NODE NODE before its properties; {what} is missing",
+            min(col, len(src) + 1),
+            1,
+            "for example: cell A1 bat+ gnd emf=12.7V r=5mOhm",
+        )
+    if len(head) > 4:
+        col = src.find(head[4], indent + len(" ".join(head[:4])))
+        return (
+            f"found '{head[4]}' where a property (key=value) was expected",
+            col + 1,
+            len(head[4]),
+            "an element line is KIND NAME NODE NODE key=value ...; a value with blanks must follow '=' directly",
+        )
+    bad = [w for w in head if not re.fullmatch(r"[A-Za-z0-9_][A-Za-z0-9_.]*[+\-]?", w)]
+    if bad:
+        col = src.find(bad[0], indent)
+        return (
+            f"'{bad[0]}' is not a valid name",
+            col + 1,
+            len(bad[0]),
+            "names hold letters, digits, '_' and '.', and may end in '+' or '-'",
+        )
+    return None
+
+
 def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int = 0, col_offset: int = 0) -> DcnetError:
     lines = text.splitlines()
     line = getattr(exc, "line", 0) or 0
     column = getattr(exc, "column", 0) or 0
-    if isinstance(exc, UnexpectedEOF) or line <= 0:
+    at_end = isinstance(exc, UnexpectedEOF) or (isinstance(exc, UnexpectedToken) and exc.token.type == "$END")
+    if at_end or line <= 0:
         line = max(len(lines), 1)
         column = len(lines[-1]) + 1 if lines else 1
     src = lines[line - 1] if 0 < line <= len(lines) else ""
@@ -312,12 +369,13 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int =
         expected = _describe_expected(set(getattr(exc, "expected", ()) or ()))
     hint = None
     if line_offset == 0 and col_offset == 0:
+        diagnosis = _diagnose_line(src, column)
+        if diagnosis is not None:
+            message, column, length, hint = diagnosis
+            return SyntaxError(message, span=Span(file, line, column, length), hint=hint, source_line=src)
         ctx = _statement_context(src, column)
         if ctx:
             expected = ctx
-        words = src.split()
-        if words and words[0] not in KEYWORDS and len(words) >= 1:
-            pass
     if "'='" in expected and "a value" not in expected:
         hint = "properties are written key=value, e.g. r=4.5mOhm"
     span = Span(file, line + line_offset, column + col_offset, 1)
@@ -354,8 +412,15 @@ def parse_value(raw: str, span: Span, source_line: str | None = None):
         err.source_line = source_line
         err.message = err.message.replace("the end of the file", "the end of the value")
         raise err from None
-    except VisitError as exc:
-        orig = exc.orig_exc
+    except (VisitError, _UnitError, _NumberError) as exc:
+        orig = getattr(exc, "orig_exc", exc)
+        if isinstance(orig, _NumberError):
+            col = raw.find(orig.text)
+            raise ValueRangeError(
+                f"the number {orig.text} is too large to be a physical quantity",
+                span=Span(span.file, span.line, span.column + max(col, 0), len(orig.text)),
+                source_line=source_line,
+            ) from None
         if isinstance(orig, _UnitError):
             suggestion = suggest_unit(orig.unit)
             # locate the unit inside the raw value

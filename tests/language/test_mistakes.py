@@ -1,0 +1,112 @@
+"""The table of common mistakes: each row is a bad circuit and the message it must produce.
+
+Every row checks the error class, the line and column, and a phrase of the message, so a
+change that makes any message less precise fails here.
+"""
+
+import pytest
+
+import dcnet
+from dcnet import errors as E
+
+OK_CELL = "cell A1 a b emf=12V r=1Ohm\n"
+
+# (circuit text, error class, line, column, phrase in the message, phrase in the hint or None)
+MISTAKES = [
+    ("cel A1 a b emf=12V r=1Ohm\n", E.UnknownNameError, 1, 1, "unknown element kind 'cel'", "did you mean 'cell'"),
+    ("cell A1 a emf=12V r=1Ohm\n", E.SyntaxError, 1, 11, "the second node name is missing", "for example"),
+    ("cell A1 emf=12V\n", E.SyntaxError, 1, 9, "the first node name is missing", None),
+    ("cell A1 a b c emf=12V\n", E.SyntaxError, 1, 13, "found 'c', expected a property", None),
+    ("cell A1 a b emf=12V r=1mohms\n", E.UnknownNameError, 1, 24, "unknown unit 'mohms'", "did you mean 'mOhm'"),
+    ("cell A1 a b emf=12 r=1Ohm\n", E.DimensionError, 1, 17, "must be a voltage", "emf=12V"),
+    ("cell A1 a b emf=12V rr=1Ohm\n", E.UnknownNameError, 1, 21, "has no property 'rr'", "did you mean 'r'"),
+    ("cell A1 a b emf=12V r=\n", E.SyntaxError, 1, 21, "expected a property written key=value", None),
+    (OK_CELL + "load L a b r=1Ohm\nground x\n", E.UnknownNameError, 3, 8, "ground node 'x'", None),
+    (OK_CELL + "load A1 a b r=1Ohm\n", E.InputError, 2, 6, "'A1' is already used", "unique"),
+    ("cell A1 a b emf=12V r=1Ohm part=foo\n", E.UnknownNameError, 1, 33, "unknown part 'foo'", None),
+    ("let x = 5V + 2A\n" + OK_CELL, E.DimensionError, 1, 14, "cannot add a current (A) and a voltage (V)", None),
+    ("cell A1 a b emf=12V r=y\n", E.UnknownNameError, 1, 23, "unknown name 'y'", "let NAME"),
+    ("let r_cell = 3mOhm\ncell A1 a b emf=12V r=r_cel\n", E.UnknownNameError, 2, 23, "unknown name 'r_cel'", "did you mean 'r_cell'"),
+    ("cell A1 a b emf=12V r=-1Ohm\n", E.ValueRangeError, 1, 23, "greater than zero", None),
+    ("cell A1 a b emf=12V r=0Ohm\n", E.ValueRangeError, 1, 23, "greater than zero", None),
+    (OK_CELL + "load L a b\n", E.InputError, 2, 6, "exactly one of r, current, power", None),
+    (OK_CELL + "load L a b r=1Ohm current=2A\n", E.InputError, 2, 6, "found: r, current", None),
+    ("title cabin\n" + OK_CELL, E.SyntaxError, 1, 7, 'quoted text', None),
+    (OK_CELL + "cable C a b length=2m\n", E.InputError, 2, 7, "needs its cross-section", None),
+    (OK_CELL + "cable C a b length=2m size=10mm2 metal=silver\n", E.UnknownNameError, 2, 40, "'silver' is not a known metal", "copper"),
+    (OK_CELL + "cable C a b length=2m size=10mm2 gauge=10\n", E.InputError, 2, 7, "not both", None),
+    (OK_CELL + "cable C a b length=2m size=10mm2 r=1mOhm\n", E.DimensionError, 2, 36, "resistance per length", None),
+    (OK_CELL + "cable C a b length=2m gauge=5/0\n", E.ValueRangeError, 2, 7, "outside 1/0..4/0", None),
+    (OK_CELL + "cable C a b length=2m gauge=ten\n", E.InputError, 2, 7, "not an AWG gauge", None),
+    (OK_CELL + "load L a b r=(1Ohm\n", E.SyntaxError, 2, 19, "expected ')'", None),
+    ("let x = 1e400 V\n" + OK_CELL, E.ValueRangeError, 1, 9, "too large", None),
+    ("let x = 1e90 V * 1e90\n" + OK_CELL, E.ValueRangeError, 1, 9, "overflows", None),
+    ("let x = 1V / 0\n" + OK_CELL, E.ValueRangeError, 1, 14, "division by zero", None),
+    ("cell A1 a b emf=12V r=1Ohm = 3\n", E.SyntaxError, 1, 28, "expected a property", None),
+    ("let m = 3\n", E.InputError, 1, 5, "'m' is a unit", None),
+    ("let cell = 3\n", E.InputError, 1, 5, "keyword", None),
+    ("let x = 3V\nlet x = 4V\n", E.InputError, 2, 5, "already defined", None),
+    (OK_CELL + "switch S a b state=shut\n", E.UnknownNameError, 2, 20, "'shut' is not a known state", "open, closed"),
+    (OK_CELL + "load L a b r=1Ohm ± 5%\n", E.InputError, 2, 14, "tolerance", "let NAME"),
+    (OK_CELL + "load L a b r=sqr(1Ohm)\n", E.UnknownNameError, 2, 14, "unknown function 'sqr'", "sqrt"),
+    (OK_CELL + "load L a b r=sqrt(2Ohm)\n", E.DimensionError, 2, 14, "square root", None),
+    ("let x = 2V ± 1A\n", E.DimensionError, 1, 9, "tolerance", None),
+    ("part p cell emf=12V r=1Ohm\npart p cell emf=12V r=1Ohm\n", E.InputError, 2, 6, "already defined", None),
+    ("part p cell emf=12V r=1Ohm\nload L a b part=p\n", E.InputError, 2, 17, "is a cell", None),
+    (OK_CELL + "load L a b r=1Ohm r=2Ohm\n", E.InputError, 2, 19, "given twice", None),
+    (OK_CELL + "limit imbalanse max=10%\n", E.UnknownNameError, 2, 7, "unknown limit rule", "imbalance"),
+    (OK_CELL + "limit drop max=3% form=a\n", E.UnknownNameError, 2, 19, "no property 'form'", "from"),
+    (OK_CELL + "cell A2 a b emf=12V r=1Ohm soc=140%\n", E.ValueRangeError, 2, 6, "soc", None),
+    (OK_CELL + "block pack (p, n)\n", E.InputError, 2, 7, "not supported yet", None),
+    ("", E.InputError, None, None, "no elements", None),
+    ("# only a comment\n", E.InputError, None, None, "no elements", None),
+]
+
+
+@pytest.mark.parametrize("text, cls, line, col, phrase, hint", MISTAKES, ids=[m[4][:40] for m in MISTAKES])
+def test_mistake_table(text, cls, line, col, phrase, hint):
+    with pytest.raises(cls) as info:
+        dcnet.parse(text, "site.dcn").solve()
+    err = info.value
+    assert phrase in err.message
+    if line is not None:
+        assert (err.line, err.column) == (line, col), err.render()
+        assert err.file == "site.dcn"
+        assert err.source_line is not None
+    if hint is not None:
+        assert hint in (err.hint or "")
+    rendered = err.render()
+    assert "Traceback" not in rendered
+
+
+TOPOLOGY = [
+    (OK_CELL + "load L a b r=1Ohm\nload M c d r=1Ohm\n", "floating", ("M",)),
+    ("source S a b emf=12V\nsource T a b emf=13V\nload L a b r=1Ohm\n", "loop made only of ideal", ("S", "T")),
+    ("source S a b emf=12V\nlink K a b\nload L a b r=1Ohm\n", "loop made only of ideal", ("S", "K")),
+    ("supply I a b current=1A\nsupply J b c current=1A\nload L a c r=1Ohm\n", "no return path", ("I", "J")),
+    ("source S a a emf=12V\nload L a b r=1Ohm\n", "shorted on itself", ("S",)),
+    (OK_CELL + "switch S a c state=open\nload L c d r=1Ohm\n", "floating", ("L",)),
+]
+
+
+@pytest.mark.parametrize("text, phrase, culprits", TOPOLOGY, ids=[t[1] for t in TOPOLOGY])
+def test_topology_names_culprits(text, phrase, culprits):
+    with pytest.raises(E.TopologyError) as info:
+        dcnet.parse(text, "site.dcn").solve()
+    err = info.value
+    assert phrase in err.message
+    for c in culprits:
+        assert c in err.culprits
+    assert err.line is not None  # points at the first culprit's line
+
+
+def test_errors_pickle_with_their_fields():
+    import pickle
+
+    with pytest.raises(E.DcnetError) as info:
+        dcnet.parse("cell A1 a b emf=12V r=1mohms\n", "x.dcn")
+    err = pickle.loads(pickle.dumps(info.value))
+    assert type(err) is E.UnknownNameError
+    assert (err.file, err.line, err.column) == ("x.dcn", 1, 24)
+    assert err.hint and "mOhm" in err.hint
+    assert str(err) == str(info.value)
