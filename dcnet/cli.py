@@ -55,7 +55,7 @@ def _parser() -> argparse.ArgumentParser:
     sub = p.add_subparsers(dest="command", metavar="COMMAND")
 
     s = sub.add_parser("solve", help="solve circuit files and print potentials, currents and powers")
-    s.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn)")
+    s.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn); - reads standard input")
     s.add_argument("--format", choices=("table", "json", "csv", "markdown"), default="table", help="output format (default: table)")
     s.add_argument(
         "--show",
@@ -88,10 +88,13 @@ def main(argv: list[str] | None = None) -> int:
 # ------------------------------------------------------------------- solve
 def _solve_one(path: str, options):
     """Load and solve one file; returns (solution, error)."""
-    from .language import load
+    from .language import load, parse
 
     try:
-        net = load(path, options)
+        if path == "-":
+            net = parse(sys.stdin.read(), "<stdin>", options)
+        else:
+            net = load(path, options)
         return net.solve(), None
     except DcnetError as err:
         if err.span is None:
