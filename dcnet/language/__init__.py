@@ -1,5 +1,6 @@
 """The circuit language: text to :class:`~dcnet.netlist.Netlist`."""
 
 from .elaborate import LIMIT_RULES, Options, load, parse
+from .printer import to_text
 
-__all__ = ["load", "parse", "Options", "LIMIT_RULES"]
+__all__ = ["load", "parse", "Options", "LIMIT_RULES", "to_text"]
