@@ -152,7 +152,7 @@ def main(argv=None) -> int:
 
     def check():
         pot, v, i = solve.currents(bt, system, x)
-        return solve.verify(bt, v, i)
+        return solve.verify(bt, v, i, pot)
 
     balance, t_verify = timed(check, args.repeat)
     rows.append(("currents + verification", t_verify))

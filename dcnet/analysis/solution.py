@@ -41,7 +41,11 @@ class Solution:
         self.checks: list[dict] = []
         self._extras: dict[str, dict[str, np.ndarray]] | None = None
         self._states: np.ndarray | None = None
-        self._pos = {n: k for k, n in enumerate(bt.names)}
+
+    @property
+    def _pos(self) -> dict[str, int]:
+        """Element name -> position (built on first lookup; the netlist already has it)."""
+        return self.netlist._by_name
 
     # ------------------------------------------------------------ lookups
     def _element_pos(self, name: str) -> int:

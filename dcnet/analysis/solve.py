@@ -40,15 +40,27 @@ def currents(bt: BranchTable, system: System, x: np.ndarray, g=None, c=None):
     return pot, v, i
 
 
-def verify(bt: BranchTable, v: np.ndarray, i: np.ndarray) -> dict:
-    """Kirchhoff current residual at every node and the power sum (Tellegen)."""
+def verify(bt: BranchTable, v: np.ndarray, i: np.ndarray, potentials: np.ndarray | None = None) -> dict:
+    """Kirchhoff current residual at every node and the power sum (Tellegen).
+
+    Residuals are judged relative to the size of the quantities that make them
+    (the largest current, and the largest conductance times the largest
+    potential, which bounds the round-off in a current computed as g·ΔV), so a
+    network whose true currents are all zero is not condemned for round-off.
+    """
     n = bt.n_nodes
     leaving = np.bincount(bt.a, weights=i, minlength=n) - np.bincount(bt.b, weights=i, minlength=n)
     kcl = float(np.abs(leaving).max(initial=0.0))
-    scale_i = float(np.abs(i).max(initial=0.0))
+    vmax = float(np.abs(potentials).max(initial=0.0)) if potentials is not None else float(np.abs(v).max(initial=0.0))
+    adm = ~bt.is_voltage
+    scale_i = max(
+        float(np.abs(i).max(initial=0.0)),
+        float(np.abs(bt.g[adm]).max(initial=0.0)) * vmax,
+        float(np.abs(bt.c[adm]).max(initial=0.0)),
+    )
     p = v * i
     psum = float(p.sum())
-    pscale = float(np.abs(p).sum())
+    pscale = max(float(np.abs(p).sum()), scale_i * vmax)
     vres = 0.0
     if bt.is_voltage.any():
         vres = float(np.abs(v[bt.is_voltage] - bt.e[bt.is_voltage]).max())
@@ -89,13 +101,13 @@ def solve(net: Netlist, *, check_topology: bool = True) -> Solution:
     if not np.all(np.isfinite(x)):
         raise NumericalError("the solve gave a value that is not finite; the circuit matrix is singular or badly scaled")
     pot, v, i = currents(bt, system, x)
-    balance = verify(bt, v, i)
+    balance = verify(bt, v, i, pot)
     if not balance["ok"]:
         # one round of iterative refinement on the assembled system
         r = system.z - system.A @ x
         x = x + factor.solve(r)
         pot, v, i = currents(bt, system, x)
-        balance = verify(bt, v, i)
+        balance = verify(bt, v, i, pot)
         balance["refined"] = True
     worst = max(balance["kcl_relative"], balance["power_relative"])
     if worst > REFUSE_REL:
