@@ -208,36 +208,67 @@ def _quantity(text: str) -> Quantity:
 
 @lru_cache(maxsize=1)
 def _parser() -> Lark:
-    return Lark(
-        grammar_path().read_text(encoding="utf-8"),
-        parser="lalr",
-        start=["file", "value"],
-        transformer=_Builder(),
-        propagate_positions=False,
-        maybe_placeholders=False,
-        cache=_cache_file(),
-    )
+    """The LALR parser; its tables are cached on disk (per user) to speed up start-up.
+
+    A new cache is written under a temporary name and renamed into place, so
+    parallel workers never read a half-written file.
+    """
+    import os
+
+    grammar = grammar_path().read_text(encoding="utf-8")
+    final = _cache_file()
+
+    def build(cache):
+        return Lark(
+            grammar,
+            parser="lalr",
+            start=["file", "value"],
+            transformer=_Builder(),
+            propagate_positions=False,
+            maybe_placeholders=False,
+            cache=cache,
+        )
+
+    if not final:
+        return build(False)
+    if os.path.exists(final):
+        return build(final)
+    tmp = f"{final}.{os.getpid()}.tmp"
+    try:
+        parser = build(tmp)
+        os.replace(tmp, final)
+        return parser
+    except OSError:
+        return build(False)
+    finally:
+        if os.path.exists(tmp):
+            try:
+                os.remove(tmp)
+            except OSError:
+                pass
 
 
-def _cache_file() -> str | bool:
-    """A per-user cache of the parse tables (speeds up start-up); False if none can be had."""
+def _cache_file() -> str | None:
+    """Where the parse tables are cached, keyed by grammar and lark version; None if nowhere writable."""
     import hashlib
     import os
+    import sys
     import tempfile
 
-    try:
-        import lark
+    import lark
 
-        text = grammar_path().read_bytes()
-        digest = hashlib.sha256(text + lark.__version__.encode()).hexdigest()[:16]
-        base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    text = grammar_path().read_bytes()
+    digest = hashlib.sha256(text + lark.__version__.encode() + str(sys.version_info[:2]).encode()).hexdigest()[:16]
+    bases = [os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache"), tempfile.gettempdir()]
+    for base in bases:
         folder = os.path.join(base, "dcnet")
-        os.makedirs(folder, exist_ok=True)
-        if not os.access(folder, os.W_OK):
-            raise OSError
-        return os.path.join(folder, f"grammar-{digest}.lark-cache")
-    except (OSError, RuntimeError):
-        return os.path.join(tempfile.gettempdir(), "dcnet-grammar.lark-cache") if os.access(tempfile.gettempdir(), os.W_OK) else False
+        try:
+            os.makedirs(folder, exist_ok=True)
+        except OSError:
+            continue
+        if os.access(folder, os.W_OK):
+            return os.path.join(folder, f"grammar-{digest}.lark-cache")
+    return None
 
 
 # ----------------------------------------------------------- error mapping
