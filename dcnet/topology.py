@@ -56,7 +56,73 @@ def check(net: Netlist, bt: BranchTable) -> list[str]:
     self_loops = np.flatnonzero((bt.a == bt.b) & ~bt.is_voltage)
     if len(self_loops):
         warnings.append("element(s) with both terminals on one node carry no current: " + _names(bt.names[i] for i in self_loops))
+    warnings += _duplicates(bt)
+    warnings += _shorted(net, bt)
+    warnings += _dangling(bt)
     return warnings
+
+
+def _duplicates(bt: BranchTable) -> list[str]:
+    if bt.shadow is None or not bt.shadow.any():
+        return []
+    out = []
+    reps = np.unique(bt.representative[bt.shadow])
+    for r in reps[:_MAX_LISTED]:
+        members = np.flatnonzero(bt.representative == r)
+        out.append(
+            f"ideal elements {_names(bt.names[m] for m in members)} are in parallel with equal EMF: "
+            f"how they share current is not determined by the circuit; each is shown carrying an equal share"
+        )
+    return out
+
+
+def _shorted(net: Netlist, bt: BranchTable) -> list[str]:
+    """Elements whose two terminals are joined by ideal zero-EMF connections (links, ideal fuses, closed switches)."""
+    zero = np.flatnonzero(bt.is_voltage & (bt.e == 0) & (bt.a != bt.b))
+    if len(zero) == 0:
+        return []
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    n = bt.n_nodes
+    adj = coo_matrix((np.ones(len(zero)), (bt.a[zero], bt.b[zero])), shape=(n, n))
+    _, labels = connected_components(adj, directed=False)
+    same = (labels[bt.a] == labels[bt.b]) & (bt.a != bt.b)
+    same[zero] = False
+    same &= ~(bt.is_voltage & (bt.e == 0))
+    hits = np.flatnonzero(same)
+    if len(hits) == 0:
+        return []
+    out = []
+    sources = [bt.names[h] for h in hits if bt.is_voltage[h] or (bt.c[h] != 0 and bt.g[h] != 0)]
+    passive = [bt.names[h] for h in hits if bt.names[h] not in sources]
+    if sources:
+        out.append(
+            f"DANGER: {_names(sources)} short-circuited by an ideal link (both terminals joined with no resistance); "
+            "a real short like this can drive a very large current"
+        )
+    if passive:
+        out.append(f"element(s) {_names(passive)} are bridged by an ideal link and carry no current")
+    return out
+
+
+def _dangling(bt: BranchTable) -> list[str]:
+    """Elements on dead ends (a chain that leads nowhere): they carry no current."""
+    m = bt.connecting & (bt.a != bt.b)
+    alive = m.copy()
+    n = bt.n_nodes
+    while True:
+        deg = np.bincount(bt.a[alive], minlength=n) + np.bincount(bt.b[alive], minlength=n)
+        leaf = deg == 1
+        leaf[bt.ground] = False
+        cut = alive & (leaf[bt.a] | leaf[bt.b])
+        if not cut.any():
+            break
+        alive &= ~cut
+    dead = np.flatnonzero(m & ~alive)
+    if len(dead) == 0:
+        return []
+    return [f"element(s) {_names(bt.names[d] for d in dead)} lead nowhere (a dead end) and carry no current"]
 
 
 def _floating(net: Netlist, bt: BranchTable) -> None:
@@ -91,7 +157,7 @@ def _floating(net: Netlist, bt: BranchTable) -> None:
 
 
 def _ideal_loops(net: Netlist, bt: BranchTable) -> None:
-    vb = np.flatnonzero(bt.is_voltage)
+    vb = np.flatnonzero(bt.solved_voltage)
     if len(vb) == 0:
         return
     for i in vb:
@@ -118,6 +184,17 @@ def _ideal_loops(net: Netlist, bt: BranchTable) -> None:
     loop = _find_loop(bt, vb)
     kinds = {net.element(n).kind for n in loop}
     emf_sum = _loop_emf(bt, loop)
+    pos = {n: k for k, n in enumerate(bt.names)}
+    with_emf = [n for n in loop if bt.e[pos[n]] != 0]
+    if len(with_emf) == 1 and abs(emf_sum) > 0:
+        others = [n for n in loop if n != with_emf[0]]
+        raise TopologyError(
+            f"ideal {net.element(with_emf[0]).kind} {with_emf[0]} is shorted by {_names(others)} "
+            f"(no resistance anywhere in the loop, so the current would be unlimited)",
+            culprits=tuple(loop),
+            element=with_emf[0],
+            hint="give the source an internal resistance r=, or the link a resistance r=",
+        )
     detail = ""
     if abs(emf_sum) > 0:
         detail = f"; its EMFs do not add to zero around the loop ({emf_sum:+.6g} V), so they contradict each other"

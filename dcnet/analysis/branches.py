@@ -31,6 +31,16 @@ class BranchTable:
     c: np.ndarray
     e: np.ndarray
     max_emf: float
+    #: voltage-form branches that duplicate another one exactly (same two nodes, same EMF):
+    #: left out of the system; the group's current is shared equally (see ``parallel_groups``)
+    shadow: np.ndarray | None = None
+    #: for every branch, the position of its group's representative (itself if not grouped)
+    representative: np.ndarray | None = None
+
+    @property
+    def solved_voltage(self) -> np.ndarray:
+        """Voltage-form branches that get an unknown in the system."""
+        return self.is_voltage & ~self.shadow
 
     @property
     def n_nodes(self) -> int:
@@ -79,6 +89,7 @@ def _build(net: Netlist) -> BranchTable:
         groups[kind_name] = (pos, cols)
         if "emf" in cols and len(pos):
             max_emf = max(max_emf, float(np.nanmax(np.abs(cols["emf"]))))
+    shadow, rep = parallel_duplicates(a, b, is_v, e)
     return BranchTable(
         names=[el.name for el in els],
         node_names=list(idx),
@@ -91,4 +102,27 @@ def _build(net: Netlist) -> BranchTable:
         c=c,
         e=e,
         max_emf=max_emf,
+        shadow=shadow,
+        representative=rep,
     )
+
+
+def parallel_duplicates(a, b, is_voltage, e):
+    """Group voltage-form branches on the same pair of nodes with the same EMF.
+
+    Returns ``shadow`` (True for every member but the first of a group) and the
+    representative position of every branch.
+    """
+    n = len(a)
+    shadow = np.zeros(n, dtype=bool)
+    rep = np.arange(n, dtype=np.int64)
+    vb = np.flatnonzero(is_voltage & (a != b))
+    if len(vb) < 2:
+        return shadow, rep
+    lo, hi = np.minimum(a[vb], b[vb]), np.maximum(a[vb], b[vb])
+    oriented = np.where(a[vb] < b[vb], e[vb], -e[vb])
+    keys = np.rec.fromarrays([lo, hi, oriented])
+    _, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
+    rep[vb] = vb[first[inverse]]
+    shadow[vb] = rep[vb] != vb
+    return shadow, rep

@@ -66,7 +66,7 @@ def triplets(bt, g=None, c=None, e=None):
 
     adm = ~bt.is_voltage & (g != 0)
     pa, pb, pg = ra[adm], rb[adm], g[adm]
-    vb = np.flatnonzero(bt.is_voltage)
+    vb = np.flatnonzero(bt.solved_voltage)
     k = np.arange(N, N + len(vb), dtype=np.int64)
     va, vbb = ra[vb], rb[vb]
     one = np.ones(len(vb))

@@ -20,12 +20,18 @@ from .branches import BranchTable, branch_table
 from .mna import System, assemble, solve_system
 from .solution import Solution
 
-__all__ = ["solve", "currents", "verify", "WARN_REL", "REFUSE_REL"]
+__all__ = ["solve", "currents", "verify", "condition_estimate", "value_span", "WARN_REL", "REFUSE_REL"]
 
 #: relative residual above which a warning is attached to the result
 WARN_REL = 1e-9
 #: relative residual above which the result is refused
 REFUSE_REL = 1e-6
+#: worst-case relative error (condition number x machine epsilon) above which a result is
+#: refused, and above which it carries a warning
+COND_REFUSE = 1e-2
+COND_WARN = 1e-8
+#: conductances spanning more decades than this get a warning
+SPAN_WARN_DECADES = 12
 
 
 def currents(bt: BranchTable, system: System, x: np.ndarray, g=None, c=None):
@@ -37,6 +43,13 @@ def currents(bt: BranchTable, system: System, x: np.ndarray, g=None, c=None):
     i = g * v + c
     if len(system.vbranch):
         i[system.vbranch] = x[system.n_node_rows :]
+    if bt.shadow is not None and bt.shadow.any():
+        # exact parallel duplicates of ideal sources or links share their group's current equally
+        idx = np.arange(len(i))
+        members = np.flatnonzero(bt.shadow | np.isin(idx, bt.representative[bt.shadow]))
+        reps = bt.representative[members]
+        count = np.bincount(reps, minlength=len(i))
+        i[members] = i[reps] / count[reps]
     return pot, v, i
 
 
@@ -80,8 +93,37 @@ def verify(bt: BranchTable, v: np.ndarray, i: np.ndarray, potentials: np.ndarray
     }
 
 
-def solve(net: Netlist, *, check_topology: bool = True) -> Solution:
-    """Solve a linear netlist and verify the result."""
+def value_span(bt: BranchTable) -> float:
+    """Decades between the largest and smallest non-zero conductance."""
+    g = np.abs(bt.g[~bt.is_voltage])
+    g = g[g > 0]
+    if len(g) < 2:
+        return 0.0
+    return float(np.log10(g.max() / g.min()))
+
+
+def condition_estimate(system: System, factor) -> float:
+    """1-norm condition number of the system matrix (exact for dense, estimated for sparse)."""
+    if system.size == 0:
+        return 1.0
+    if system.dense:
+        return float(np.linalg.cond(system.A, 1))
+    from scipy.sparse.linalg import LinearOperator, onenormest
+
+    lu = factor._lu
+    n = system.size
+    inv = LinearOperator((n, n), matvec=lu.solve, rmatvec=lambda y: lu.solve(y, trans="T"), dtype=float)
+    norm_a = float(abs(system.A).sum(axis=0).max())
+    return norm_a * float(onenormest(inv))
+
+
+def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool = False) -> Solution:
+    """Solve a linear netlist and verify the result.
+
+    The condition number is computed for small (dense) systems always, and for
+    large ones when values span many decades, when the self-check is not clean,
+    or on request (``estimate_condition=True``).
+    """
     from .. import topology
 
     bt = branch_table(net)
@@ -96,12 +138,36 @@ def solve(net: Netlist, *, check_topology: bool = True) -> Solution:
             if err.span is None and name and net.has_element(name):
                 err.span = net.element(name).span
             raise
+    span = value_span(bt)
+    if span > SPAN_WARN_DECADES:
+        warnings.append(
+            f"element conductances span {span:.0f} decades; results may lose precision "
+            "(check for extreme resistances, e.g. a missing unit prefix)"
+        )
     system = assemble(bt)
     x, factor = solve_system(system)
     if not np.all(np.isfinite(x)):
-        raise NumericalError("the solve gave a value that is not finite; the circuit matrix is singular or badly scaled")
+        raise NumericalError(
+            "the solve gave a value that is not finite; the circuit matrix is singular or badly scaled",
+            hint="check for extreme resistances or a part of the circuit that is not connected as intended",
+        )
     pot, v, i = currents(bt, system, x)
     balance = verify(bt, v, i, pot)
+    if system.dense or span > SPAN_WARN_DECADES or not balance["ok"] or estimate_condition:
+        cond = condition_estimate(system, factor)
+        balance["condition_estimate"] = cond
+        bound = cond * np.finfo(float).eps  # worst-case relative error of the solution vector
+        if bound > COND_REFUSE:
+            raise NumericalError(
+                f"the circuit matrix is numerically singular (condition number about {cond:.1g}); "
+                "no trustworthy answer can be computed",
+                hint="element values span too many decades; check for extreme resistances",
+            )
+        if bound > COND_WARN:
+            warnings.append(
+                f"the circuit matrix is ill-conditioned (condition number about {cond:.1g}): "
+                f"up to {-np.log10(bound):.0f} significant digits can be trusted in the worst case"
+            )
     if not balance["ok"]:
         # one round of iterative refinement on the assembled system
         r = system.z - system.A @ x
