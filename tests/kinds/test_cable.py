@@ -71,7 +71,8 @@ def test_aluminium_resistivity_and_coefficient():
     # 61 % IACS aluminium: 0.028264 Ohm*mm2/m, 0.00403 /K (IEC 60228 conductor tables, secondary)
     assert Q_(rho, "ohm*m").to("ohm*mm**2/m").magnitude == pytest.approx(0.028264, rel=1e-12)
     assert alpha == pytest.approx(0.00403, rel=1e-12)
-    # 61 % IACS means 61 % of the annealed-copper conductivity (IEC 60028 copper as 100 %)
+    # 61 % IACS means 61 % of the conductivity of IEC 60028 annealed copper (definition of % IACS,
+    # from memory)
     assert metals()["copper"][0] / rho == pytest.approx(0.61, abs=0.005)
 
 
@@ -255,17 +256,19 @@ def test_nec_table8_at_75_degrees(gauge):
     res = _cable(f"gauge={gauge} temp=75degC", length="1000ft")
     per_kft = _ohm_per_kft(res["resistance_ohm"], KFT.to("m").magnitude)
     table = NEC_TABLE8_75C[gauge]
-    # NEC Chapter 9 Table 8 (secondary) is for stranded conductors, whose strands are longer than the
-    # cable and whose area the table does not take as the solid nominal area: our solid-conductor
-    # model must come out at or below it (a bound) and, as a tolerance of ours, within 3 %.
+    # NEC Chapter 9 Table 8 (secondary) is for stranded conductors; stranding and tolerances make a
+    # tabulated value differ from resistivity x length / nominal area (REFERENCES.md note), so our
+    # solid-conductor model must come out at or below it (a bound) and, as a tolerance of ours,
+    # within 3 %.
     assert per_kft <= table
     assert per_kft == pytest.approx(table, rel=0.03)
 
 
 def test_circular_mil_formula_for_a_boat_feeder():
     """A 12 V boat circuit sized by the circular-mil formula, then solved by dcnet."""
-    # ABYC E-11 (secondary): CM = K*I*L/E with K = 10.75, L the conductor length in feet
-    # (out and back), E the allowed drop in volts; 3 % for critical circuits (same source)
+    # ABYC E-11 (secondary): CM = K*I*L/E with K = 10.75 and a 3 % drop for main feeders and
+    # electronics; L is the conductor length in feet counted out and back, E the allowed drop in
+    # volts (the meaning of L and E from memory)
     current, one_way_ft, system = 20.0, 15.0, 12.0
     allowed = 0.03 * system
     cm = 10.75 * current * (2 * one_way_ft) / allowed
@@ -283,8 +286,8 @@ def test_circular_mil_formula_for_a_boat_feeder():
         )
     ).solve()
     drop = sol.voltage("FEED") + sol.voltage("RET")
-    # K = 10.75 Ohm*cmil/ft is copper at a little above 20 degC; with IEC 60028 copper at 20 degC
-    # the model's drop must not exceed the allowed drop (a bound) ...
+    # K = 10.75 Ohm*cmil/ft lies above IEC 60028 copper at 20 degC (computed here with pint), so the
+    # model's drop must not exceed the allowed drop (a bound) ...
     k_model = Q_(metals()["copper"][0], "ohm*m").to("ohm*circular_mil/ft").magnitude
     assert k_model < 10.75
     assert drop <= allowed
