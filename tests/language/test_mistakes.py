@@ -82,7 +82,9 @@ def test_mistake_table(text, cls, line, col, phrase, hint):
 TOPOLOGY = [
     (OK_CELL + "load L a b r=1Ohm\nload M c d r=1Ohm\n", "floating", ("M",)),
     ("source S a b emf=12V\nsource T a b emf=13V\nload L a b r=1Ohm\n", "loop made only of ideal", ("S", "T")),
-    ("source S a b emf=12V\nlink K a b\nload L a b r=1Ohm\n", "loop made only of ideal", ("S", "K")),
+    ("source S a b emf=12V\nlink K a b\nload L a b r=1Ohm\n", "ideal source S is shorted by K", ("S", "K")),
+    ("source S a b emf=12V\nlink K a c\nlink J c b\nload L a b r=1Ohm\n", "ideal source S is shorted by K, J", ("S", "K", "J")),
+    ("source S a b emf=12V\nsource T b c emf=1V\nsource U a c emf=12V\nload L a b r=1Ohm\n", "contradict", ("S", "T", "U")),
     ("supply I a b current=1A\nsupply J b c current=1A\nload L a c r=1Ohm\n", "no return path", ("I", "J")),
     ("source S a a emf=12V\nload L a b r=1Ohm\n", "shorted on itself", ("S",)),
     (OK_CELL + "switch S a c state=open\nload L c d r=1Ohm\n", "floating", ("L",)),
