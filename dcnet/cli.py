@@ -30,6 +30,7 @@ def _options(args):
         max_file_bytes=args.max_file_bytes,
         max_elements=args.max_elements,
         max_include_depth=args.max_include_depth,
+        max_expression_depth=args.max_expression_depth,
         allow_outside=args.allow_outside_includes,
     )
 
@@ -42,6 +43,7 @@ def _add_input_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--max-file-bytes", type=int, default=d.max_file_bytes, metavar="N", help=f"largest circuit file read (default {d.max_file_bytes:,})")
     g.add_argument("--max-elements", type=int, default=d.max_elements, metavar="N", help=f"most elements in one circuit (default {d.max_elements:,})")
     g.add_argument("--max-include-depth", type=int, default=d.max_include_depth, metavar="N", help=f"deepest nesting of includes (default {d.max_include_depth})")
+    g.add_argument("--max-expression-depth", type=int, default=d.max_expression_depth, metavar="N", help=f"deepest nesting of a value expression (default {d.max_expression_depth})")
     g.add_argument("--allow-outside-includes", action="store_true", help="follow includes that leave the circuit file's folder")
 
 
@@ -57,6 +59,7 @@ def _parser() -> argparse.ArgumentParser:
     s = sub.add_parser("solve", help="solve circuit files and print potentials, currents and powers")
     s.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn); - reads standard input")
     s.add_argument("--format", choices=("table", "json", "csv", "markdown"), default="table", help="output format (default: table)")
+    s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input; written to a temporary name, then renamed)")
     s.add_argument(
         "--show",
         nargs="+",
@@ -68,6 +71,29 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
+class _Output:
+    """Collects what a command prints; sends it to stdout or, atomically, to ``--output``."""
+
+    def __init__(self):
+        import io
+
+        self.buf = io.StringIO()
+
+    def write(self, text: str) -> None:
+        self.buf.write(text)
+
+    def finish(self, args, inputs) -> None:
+        text = self.buf.getvalue()
+        target = getattr(args, "output", None)
+        if target:
+            from .files import atomic_write_text
+
+            atomic_write_text(target, text, protect=list(inputs))
+        else:
+            sys.stdout.write(text)
+            sys.stdout.flush()
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = _parser()
     args = parser.parse_args(argv)
@@ -77,6 +103,9 @@ def main(argv: list[str] | None = None) -> int:
     try:
         if args.command == "solve":
             return _cmd_solve(args)
+    except DcnetError as err:
+        print(f"dcnet: {err.render()}", file=sys.stderr)
+        return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print("dcnet: interrupted", file=sys.stderr)
         return 130
@@ -115,34 +144,40 @@ def _status(sol) -> int:
 
 
 def _cmd_solve(args) -> int:
+    from .files import expand_inputs
     from .report import text as rt
 
     options = _options(args)
-    files = args.files
-    if len(files) == 1:
+    files = expand_inputs(args.files)
+    out = _Output()
+    if len(files) == 1 and not Path(args.files[0]).is_dir():
         sol, err = _solve_one(files[0], options)
         if err is not None:
             print(err.render(), file=sys.stderr)
             return EXIT_BAD_INPUT
         if args.show:
-            return _show(sol, args.show, args.format, files[0])
-        result = sol.to_dict()
-        if args.format == "json":
-            result = {"file": files[0], **result}
-            print(json.dumps(result, indent=2))
-        elif args.format == "csv":
-            sys.stdout.write(rt.csv_text(result))
-        elif args.format == "markdown":
-            print(rt.markdown(result, files[0]))
+            code = _show(sol, args.show, args.format, files[0], out)
         else:
-            print(rt.table(result, files[0]))
+            result = sol.to_dict()
+            if args.format == "json":
+                out.write(json.dumps({"file": files[0], **result}, indent=2) + "\n")
+            elif args.format == "csv":
+                out.write(rt.csv_text(result))
+            elif args.format == "markdown":
+                out.write(rt.markdown(result, files[0]) + "\n")
+            else:
+                out.write(rt.table(result, files[0]) + "\n")
+            code = _status(sol)
         for w in sol.warnings:
             print(f"dcnet: warning: {files[0]}: {w}", file=sys.stderr)
-        return _status(sol)
-    return _solve_many(files, options, args)
+        out.finish(args, sol.netlist.files)
+        return code
+    code = _solve_many(files, options, args, out)
+    out.finish(args, files)
+    return code
 
 
-def _show(sol, specs, fmt, file) -> int:
+def _show(sol, specs, fmt, file, out) -> int:
     from .analysis.solution import QuantityError
     from .report import text as rt
 
@@ -154,17 +189,17 @@ def _show(sol, specs, fmt, file) -> int:
             print(f"dcnet: {file}: {exc}", file=sys.stderr)
             return EXIT_BAD_INPUT
     if fmt == "json":
-        print(json.dumps({"file": file, "values": {label: value for label, value, _ in values}}, indent=2))
+        out.write(json.dumps({"file": file, "values": {label: value for label, value, _ in values}}, indent=2) + "\n")
     elif fmt == "csv":
-        print("quantity,value,unit")
+        out.write("quantity,value,unit\n")
         for label, value, unit in values:
-            print(f"{label},{value!r},{unit}")
+            out.write(f"{label},{value!r},{unit}\n")
     else:
-        print("\n".join(rt.show_lines(values)))
+        out.write("\n".join(rt.show_lines(values)) + "\n")
     return _status(sol)
 
 
-def _solve_many(files, options, args) -> int:
+def _solve_many(files, options, args, out) -> int:
     from .report import text as rt
 
     counts = {"ok": 0, "check failed": 0, "refused": 0}
@@ -197,7 +232,7 @@ def _solve_many(files, options, args) -> int:
         records.append(rec)
     summary = f"{len(files)} files: {counts['ok']} ok, {counts['check failed']} failed a check, {counts['refused']} refused"
     if args.format == "json":
-        print(json.dumps({"files": records, "summary": counts}, indent=2))
+        out.write(json.dumps({"files": records, "summary": counts}, indent=2) + "\n")
     elif args.format == "csv":
         import csv
         import io
@@ -209,7 +244,7 @@ def _solve_many(files, options, args) -> int:
         for r in records:
             vals = r.get("values", {})
             w.writerow([r["file"], r["status"], r.get("elements", ""), r.get("nodes", ""), r.get("kcl_max_residual_A", ""), *[vals.get(k, "") for k in keys], r.get("error", "")])
-        sys.stdout.write(buf.getvalue())
+        out.write(buf.getvalue())
     else:
         rows = [["file", "status", "elements", "nodes", "detail"]]
         for r in records:
@@ -219,16 +254,15 @@ def _solve_many(files, options, args) -> int:
             rows.append([r["file"], r["status"], str(r.get("elements", "")), str(r.get("nodes", "")), detail])
         lines = rt.columns(rows, right={2, 3}, indent="")
         if args.format == "markdown":
-            print("| file | status | elements | nodes | detail |\n|---|---|---:|---:|---|")
+            out.write("| file | status | elements | nodes | detail |\n|---|---|---:|---:|---|\n")
             for r in rows[1:]:
-                print("| " + " | ".join(r) + " |")
+                out.write("| " + " | ".join(r) + " |\n")
         else:
-            print("\n".join(lines))
-        print(summary)
+            out.write("\n".join(lines) + "\n")
+        out.write(summary + "\n")
         if args.format == "table":
-            print()
-            print(rt.wrapped_caution())
-    if args.format in ("json", "csv"):
+            out.write("\n" + rt.wrapped_caution() + "\n")
+    if args.format in ("json", "csv") or args.output:
         print(summary, file=sys.stderr)
     return worst
 

@@ -148,12 +148,29 @@ def _floating(net: Netlist, bt: BranchTable) -> None:
             hint="add a path for the current (a load or resistor) or use a voltage source",
         )
     what = "a floating part" if n_islands == 1 else f"{n_islands} floating parts"
+    hint = "connect it to the rest of the circuit, or check for a misspelt node name or an open switch"
+    typo = _likely_typo(nodes, [bt.node_names[k] for k in np.flatnonzero(~bad)])
+    if typo:
+        hint = f"did you mean '{typo[1]}' where you wrote '{typo[0]}'? " + hint
     raise TopologyError(
         f"{what} with no path to ground '{net.ground}': node(s) {_names(nodes)}; element(s) {_names(names)}",
         culprits=tuple(names[:_MAX_LISTED]),
         node=nodes[0],
-        hint="connect it to the rest of the circuit, or check for a misspelt node name or an open switch",
+        hint=hint,
     )
+
+
+def _likely_typo(floating: list[str], grounded: list[str]) -> tuple[str, str] | None:
+    """A floating node whose name is close to a connected one (a misspelt node name)."""
+    import difflib
+
+    if len(grounded) > 5000:
+        grounded = grounded[:5000]
+    for name in floating[:50]:
+        close = difflib.get_close_matches(name, grounded, n=1, cutoff=0.75)
+        if close:
+            return name, close[0]
+    return None
 
 
 def _ideal_loops(net: Netlist, bt: BranchTable) -> None:

@@ -109,3 +109,37 @@ def test_real_process_reads_standard_input():
     assert proc.returncode == 2
     assert "<stdin>:1:" in proc.stderr
     assert "Traceback" not in proc.stderr
+
+
+def test_output_file_is_written_atomically_and_never_over_an_input(capsys, tmp_path):
+    import shutil
+
+    src = tmp_path / "cabin.dcn"
+    shutil.copy(CABIN, src)
+    before = src.read_bytes()
+    out = tmp_path / "result.json"
+    code, stdout, _ = run(capsys, "solve", str(src), "--format", "json", "-o", str(out))
+    assert code == 0 and stdout == ""
+    assert json.loads(out.read_text())["title"].startswith("Hillside")
+    # asking to write over the circuit itself is refused, and the circuit is untouched
+    code, _, err = run(capsys, "solve", str(src), "-o", str(src))
+    assert code == 2 and "refusing to write over the input file" in err
+    assert src.read_bytes() == before
+    assert [p.name for p in tmp_path.iterdir() if p.name.endswith(".tmp")] == []
+
+
+def test_folder_of_a_thousand_files_with_a_few_bad(capsys, tmp_path):
+    folder = tmp_path / "fleet"
+    folder.mkdir()
+    bad = {7: "cell A a gnd emf=12V r=1mohms\n", 345: "load L a b r=1Ohm\nload M c d r=1Ohm\n", 999: "cell A a emf=12V\n"}
+    for k in range(1000):
+        text = bad.get(k, f"cell A pos gnd emf={12 + k / 1000:.3f}V r=20mOhm\ncable W pos load length=2m size=6mm2\nload L load gnd r=1.5Ohm\nground gnd\n")
+        (folder / f"site{k:04d}.dcn").write_text(text)
+    hashes = {p.name: p.read_bytes() for p in folder.iterdir()}
+    code, out, err = run(capsys, "solve", str(folder), "--show", "L.current")
+    assert code == 2  # some files were refused
+    assert "1000 files: 997 ok, 0 failed a check, 3 refused" in out
+    assert out.count(" ok ") + out.count(" ok\n") >= 997
+    for k in bad:
+        assert f"site{k:04d}.dcn" in err
+    assert {p.name: p.read_bytes() for p in folder.iterdir()} == hashes  # nothing overwritten

@@ -52,6 +52,8 @@ class Options:
     max_file_bytes: int = 20_000_000
     max_elements: int = 2_000_000
     max_include_depth: int = 16
+    max_expression_depth: int = 256
+    max_block_depth: int = 16  # nesting of block definitions (reusable sub-networks)
     allow_outside: bool = False  # includes outside the top file's folder tree
 
 
@@ -141,7 +143,18 @@ def _read(p: Path, options: Options, span: Span | None) -> str:
 
 
 # -------------------------------------------------------------- statements
-def _run(st: _State, text: str, file: str, folder: Path) -> None:
+def _run(st: _State, text: str, file: str, folder: Path, echo: bool = True) -> None:
+    """Elaborate one file's statements. ``echo=False`` (a file outside the circuit's folder,
+    included with permission) keeps its lines out of every message."""
+    try:
+        _run_statements(st, text, file, folder)
+    except DcnetError as err:
+        if not echo and err.file == file:
+            err.source_line = None
+        raise
+
+
+def _run_statements(st: _State, text: str, file: str, folder: Path) -> None:
     st.lines[file] = text.splitlines()
     statements = parse_statements(text, file)
     handlers = {
@@ -218,7 +231,29 @@ def _let(st: _State, s: Statement, file: str) -> None:
     st.net.exprs[("let", name)] = tree
 
 
+def _depth(tree) -> int:
+    """Nesting depth of an expression tree (iterative: deep trees must not blow the stack)."""
+    deepest = 0
+    stack = [(tree, 1)]
+    while stack:
+        node, d = stack.pop()
+        if d > deepest:
+            deepest = d
+        if not isinstance(node, tuple) or node[0] in ("q", "name"):
+            continue
+        children = node[3] if node[0] == "call" else node[1:]
+        stack.extend((c, d + 1) for c in children if isinstance(c, tuple))
+    return deepest
+
+
 def _eval(st: _State, tree, span: Span) -> Quantity:
+    depth = _depth(tree)
+    if depth > st.options.max_expression_depth:
+        raise LimitError(
+            f"the expression nests {depth} levels deep, above the limit of {st.options.max_expression_depth}",
+            span=span,
+            hint="simplify it with let values, or raise the limit with --max-expression-depth",
+        )
     try:
         return evaluate(tree, st.env, lambda w: suggest(w, st.env))
     except ExpressionProblem as p:
@@ -418,15 +453,18 @@ def _include(st: _State, s: Statement, file: str, folder: Path) -> None:
             hint="raise the limit with --max-include-depth if the files are trusted",
         )
     target = (folder / rel).resolve()  # resolves symlinks before the check
-    if st.root is not None and not st.options.allow_outside:
+    inside = True
+    if st.root is not None:
         try:
             target.relative_to(st.root)
         except ValueError:
-            raise IncludeError(
-                f"include '{rel}' points outside the circuit's folder",
-                span=span,
-                hint="pass --allow-outside-includes if you trust the file",
-            ) from None
+            inside = False
+    if not inside and not st.options.allow_outside:
+        raise IncludeError(
+            f"include '{rel}' points outside the circuit's folder",
+            span=span,
+            hint="pass --allow-outside-includes if you trust the file",
+        )
     if target in st.include_stack:
         chain = " -> ".join(p.name for p in st.include_stack[st.include_stack.index(target):] + [target])
         raise IncludeError(f"include cycle: {chain}", span=span, hint="remove one of the includes")
@@ -434,7 +472,7 @@ def _include(st: _State, s: Statement, file: str, folder: Path) -> None:
     st.include_stack.append(target)
     st.net.files.append(str(target))
     try:
-        _run(st, text, str(target), target.parent)
+        _run(st, text, str(target), target.parent, echo=inside)
     finally:
         st.include_stack.pop()
 

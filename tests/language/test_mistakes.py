@@ -57,6 +57,7 @@ MISTAKES = [
     (OK_CELL + "limit imbalanse max=10%\n", E.UnknownNameError, 2, 7, "unknown limit rule", "imbalance"),
     (OK_CELL + "limit drop max=3% form=a\n", E.UnknownNameError, 2, 19, "no property 'form'", "from"),
     (OK_CELL + "cell A2 a b emf=12V r=1Ohm soc=140%\n", E.ValueRangeError, 2, 6, "soc", None),
+    ("let x = " + "+".join(["1V"] * 300) + "\n" + OK_CELL, E.LimitError, 1, 9, "nests 300 levels deep", "--max-expression-depth"),
     (OK_CELL + "block pack (p, n)\n", E.InputError, 2, 7, "not supported yet", None),
     ("", E.InputError, None, None, "no elements", None),
     ("# only a comment\n", E.InputError, None, None, "no elements", None),
@@ -100,6 +101,13 @@ def test_topology_names_culprits(text, phrase, culprits):
     for c in culprits:
         assert c in err.culprits
     assert err.line is not None  # points at the first culprit's line
+
+
+def test_floating_node_suggests_a_misspelt_name():
+    text = "cell A pos gnd emf=12V r=1Ohm\nload L1 pos gnd r=1Ohm\nresistor R pos middle r=1Ohm\nload L2 midle gnd2 r=1Ohm\n"
+    with pytest.raises(E.TopologyError) as info:
+        dcnet.parse(text).solve()
+    assert "did you mean 'middle' where you wrote 'midle'" in info.value.hint
 
 
 def test_errors_pickle_with_their_fields():
