@@ -129,7 +129,7 @@ def _solve_one(path: str, options):
         if err.span is None:
             from .errors import Span
 
-            err.span = Span(path)
+            err.span = Span("<stdin>" if path == "-" else path)
         return None, err
     except RecursionError:
         from .errors import LimitError, Span

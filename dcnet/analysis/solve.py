@@ -103,38 +103,58 @@ def value_span(bt: BranchTable) -> float:
     return float(np.log10(g.max() / g.min()))
 
 
-def condition_estimate(system: System, factor) -> float:
-    """1-norm condition number of the row-equilibrated system matrix.
+def _equilibrate(A, dense: bool, rounds: int = 8):
+    """Row and column scalings r, c (Ruiz's iteration) that bring every row and column of
+    diag(r) A diag(c) to largest entry about 1."""
+    n = A.shape[0]
+    r = np.ones(n)
+    c = np.ones(n)
+    absA = np.abs(A) if dense else abs(A).tocsr()
+    for _ in range(rounds):
+        if dense:
+            S = absA * r[:, None] * c[None, :]
+            rmax, cmax = S.max(axis=1), S.max(axis=0)
+        else:
+            from scipy.sparse import diags
 
-    Rows are scaled by their largest entry first, so a circuit that is merely
-    badly scaled (a 1 mOhm cable beside a 1 MOhm sensing resistor) is not
-    mistaken for a nearly singular one. Exact for dense systems, estimated
-    (Hager-Higham, ``scipy.sparse.linalg.onenormest``) for sparse ones.
+            S = diags(r) @ absA @ diags(c)
+            rmax = np.asarray(S.max(axis=1).todense()).ravel()
+            cmax = np.asarray(S.max(axis=0).todense()).ravel()
+        rmax[rmax == 0] = 1.0
+        cmax[cmax == 0] = 1.0
+        r /= np.sqrt(rmax)
+        c /= np.sqrt(cmax)
+    return r, c
+
+
+def condition_estimate(system: System, factor) -> float:
+    """1-norm condition number of the equilibrated system matrix.
+
+    Rows and columns are scaled first (Ruiz's iteration), so a circuit that is
+    merely badly scaled (a 1 mOhm cable beside a 1 MOhm sensing resistor, an
+    ideal source across a busbar) is not mistaken for a nearly singular one.
+    Exact for dense systems; estimated for sparse ones (Hager-Higham,
+    ``scipy.sparse.linalg.onenormest``).
     """
     if system.size == 0:
         return 1.0
+    A = system.A
+    r, c = _equilibrate(A, system.dense)
     if system.dense:
-        A = system.A
-        rmax = np.abs(A).max(axis=1)
-        rmax[rmax == 0] = 1.0
-        return float(np.linalg.cond(A / rmax[:, None], 1))
+        return float(np.linalg.cond(A * r[:, None] * c[None, :], 1))
     from scipy.sparse import diags
     from scipy.sparse.linalg import LinearOperator, onenormest
 
-    A = system.A
-    absA = abs(A)
-    rmax = np.asarray(absA.max(axis=1).todense()).ravel()
-    rmax[rmax == 0] = 1.0
     lu = factor._lu
     n = system.size
-    # (D^-1 A)^-1 = A^-1 D
+    # (R A C)^-1 = C^-1 A^-1 R^-1
     inv = LinearOperator(
         (n, n),
-        matvec=lambda y: lu.solve(np.ravel(y) * rmax),
-        rmatvec=lambda y: rmax * lu.solve(np.ravel(y), trans="T"),
+        matvec=lambda y: lu.solve(np.ravel(y) / r) / c,
+        rmatvec=lambda y: lu.solve(np.ravel(y) / c, trans="T") / r,
         dtype=float,
     )
-    norm_scaled = float((diags(1.0 / rmax) @ absA).sum(axis=0).max())
+    norm_scaled = float(abs(diags(r) @ A @ diags(c)).sum(axis=0).max())
     return norm_scaled * float(onenormest(inv))
 
 
