@@ -161,7 +161,17 @@ class _Builder(Transformer):
 
 
 _WORD = re.compile(r"\S+")
-_PROP = re.compile(r"([A-Za-z_][A-Za-z0-9_.]*)[ \t]*=[ \t]*((?:[^\s#\\=]+(?:[ \t]+(?![A-Za-z_][A-Za-z0-9_.]*[ \t]*=)[^\s#\\=]+)*))")
+_PROP: re.Pattern | None = None
+
+
+def _prop_pattern() -> re.Pattern:
+    """key=value splitter, built from the grammar's own VALUE terminal (one source of truth)."""
+    global _PROP
+    if _PROP is None:
+        line = next(x for x in grammar_path().read_text(encoding="utf-8").splitlines() if x.startswith("VALUE:"))
+        value = line[line.index("/") + 1 : line.rindex("/")]
+        _PROP = re.compile(r"([A-Za-z_][A-Za-z0-9_.]*)[ \t]*=[ \t]*(" + value + ")")
+    return _PROP
 
 
 def _word_positions(tok: Token, line: int, col: int) -> tuple[tuple[int, int], ...]:
@@ -173,7 +183,7 @@ def _props(tokens) -> tuple[Prop, ...]:
     out = []
     for tok in tokens:
         line, col = tok.line, tok.column
-        for m in _PROP.finditer(tok):
+        for m in _prop_pattern().finditer(tok):
             out.append(Prop(m.group(1), m.group(2), line, col + m.start(1), col + m.start(2)))
     return tuple(out)
 
@@ -298,7 +308,7 @@ _TERMINAL_WORDS = {
 def _describe_expected(expected: set[str]) -> str:
     words = []
     for t in sorted(expected):
-        if t.startswith("__ANON") or t in ("CONTINUATION", "COMMENT"):
+        if t.startswith("__ANON") or t in ("CONTINUATION", "COMMENT", "_TOL", "_BLANKS"):
             continue
         w = _TERMINAL_WORDS.get(t, f"'{t.lower()}'" if t.isupper() and len(t) < 10 else t)
         if w not in words:
@@ -409,8 +419,34 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int =
             expected = ctx
     if "'='" in expected and "a value" not in expected:
         hint = "properties are written key=value, e.g. r=4.5mOhm"
+    message = f"found {found}, expected {expected}"
+    if line_offset == 0 and col_offset == 0 and "key=value" in expected:
+        better = _property_hint(src, column)
+        if better:
+            message, hint = better
+    elif col_offset and src[column - 1 : column] == "," and src[column : column + 1].isdigit():
+        message = "found ',' inside a number"
+        hint = "write decimals with a point, e.g. 12.6V"
+    elif col_offset and isinstance(exc, UnexpectedToken) and exc.token.type in ("NAME", "QUANTITY", "IDENT", "ELEMHEAD"):
+        message = f"found {found} after a complete value"
+        hint = f"is an '=' missing ({exc.token}=...)? or an operator (* + - /) between two values?"
     span = Span(file, line + line_offset, column + col_offset, 1)
-    return SyntaxError(f"found {found}, expected {expected}", span=span, hint=hint, source_line=src)
+    return SyntaxError(message, span=span, hint=hint, source_line=src)
+
+
+def _property_hint(src: str, column: int):
+    """(message, hint) for a malformed key=value, or None."""
+    rest = src[column - 1 :]
+    m = re.match(r"([A-Za-z_][\w.]*)\s*==", rest)
+    if m:
+        return f"'==' after '{m.group(1)}'", "write a single '=' between a property and its value"
+    m = re.match(r"([A-Za-z_][\w.]*)\s*=\s*(#|\\|$|[A-Za-z_][\w.]*\s*=)", rest)
+    if m:
+        return f"the value of '{m.group(1)}' is missing", f"write {m.group(1)}=VALUE, e.g. {m.group(1)}=4.5mOhm"
+    m = re.match(r"([A-Za-z_][\w.]*)\s+([^\s=#]+)", rest)
+    if m:
+        return f"found '{m.group(1)}' with no '=' after it", f"is an '=' missing? write {m.group(1)}={m.group(2)}"
+    return None
 
 
 # ------------------------------------------------------------------ entry
