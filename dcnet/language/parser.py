@@ -417,7 +417,10 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int =
         ctx = _statement_context(src, column)
         if ctx:
             expected = ctx
-    if "'='" in expected and "a value" not in expected:
+    first = src.split()[0] if src.split() else ""
+    if line_offset == 0 and col_offset == 0 and first in _USAGE:
+        hint = f"a {first} statement is written: {_USAGE[first]}"
+    elif "'='" in expected and "a value" not in expected:
         hint = "properties are written key=value, e.g. r=4.5mOhm"
     message = f"found {found}, expected {expected}"
     if line_offset == 0 and col_offset == 0 and "key=value" in expected:
@@ -432,6 +435,19 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int =
         hint = f"is an '=' missing ({exc.token}=...)? or an operator (* + - /) between two values?"
     span = Span(file, line + line_offset, column + col_offset, 1)
     return SyntaxError(message, span=span, hint=hint, source_line=src)
+
+
+_USAGE = {
+    "title": 'title "text"',
+    "let": "let NAME = VALUE (optionally ± TOLERANCE)",
+    "part": "part NAME KIND key=value ...",
+    "ground": "ground NODE",
+    "include": 'include "relative/path.dcn"',
+    "limit": "limit RULE key=value ...",
+    "block": "block NAME (PORT, PORT, ...)",
+    "end": "end (closing a block)",
+    "use": "use NAME BLOCK (NODE, NODE, ...) key=value ...",
+}
 
 
 def _property_hint(src: str, column: int):
