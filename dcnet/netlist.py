@@ -63,6 +63,8 @@ class Netlist:
     #: expression trees of named values (and of properties that use them), for studies
     exprs: dict[tuple[str, str], Any] = field(default_factory=dict)
     files: list[str] = field(default_factory=list)
+    #: bank shorthand metadata: name -> {series, parallel, tap, pos, neg, strings (cell names per string), prefix}
+    banks: dict[str, dict[str, Any]] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
     node_index: dict[str, int] = field(default_factory=dict)
     _by_name: dict[str, int] = field(default_factory=dict, repr=False)

@@ -53,8 +53,41 @@ class Options:
     max_elements: int = 2_000_000
     max_include_depth: int = 16
     max_expression_depth: int = 256
-    max_block_depth: int = 16  # nesting of block definitions (reusable sub-networks)
+    max_block_depth: int = 16  # nesting of block instances (a block that uses a block ...)
     allow_outside: bool = False  # includes outside the top file's folder tree
+
+
+@dataclass
+class _Scope:
+    """Where statements are being elaborated: the top level, or inside a block instance.
+
+    Inside an instance, element names get ``prefix``; ports map to the caller's nodes and
+    every other node gets the prefix too; ``env`` holds the instance's own let values
+    (with the caller's overrides) in front of the file's global ones.
+    """
+
+    prefix: str = ""
+    ports: dict[str, str] = field(default_factory=dict)
+    env: Any = None
+    depth: int = 0
+    chain: tuple[str, ...] = ()
+
+    def name(self, local: str) -> str:
+        return self.prefix + local
+
+    def node(self, local: str) -> str:
+        if local in self.ports:
+            return self.ports[local]
+        return self.prefix + local
+
+
+@dataclass
+class _Block:
+    name: str
+    ports: tuple[str, ...]
+    body: list
+    file: str
+    span: Span
 
 
 @dataclass
@@ -68,6 +101,11 @@ class _State:
     ground_span: Span | None = None
     const_cache: dict[str, Quantity] = field(default_factory=dict)
     include_stack: list[Path] = field(default_factory=list)
+    blocks: dict[str, _Block] = field(default_factory=dict)
+    scope: _Scope = field(default_factory=_Scope)
+
+    def __post_init__(self):
+        self.scope.env = self.env
 
 
 # ------------------------------------------------------------------ entry
@@ -154,33 +192,57 @@ def _run(st: _State, text: str, file: str, folder: Path, echo: bool = True) -> N
         raise
 
 
+_HANDLERS: dict[str, Any] = {}
+
+
 def _run_statements(st: _State, text: str, file: str, folder: Path) -> None:
     st.lines[file] = text.splitlines()
     statements = parse_statements(text, file)
-    handlers = {
-        "element": _element,
-        "let": _let,
-        "part": _part,
-        "ground": _ground,
-        "title": _title,
-        "include": _include,
-        "limit": _limit,
-        "block": _unsupported,
-        "use": _unsupported,
-        "end": _unsupported,
-    }
+    collecting: _Block | None = None
+    depth = 0
     for s in statements:
         try:
-            if s.what == "include":
+            if collecting is not None:
+                if s.what == "block":
+                    depth += 1
+                elif s.what == "end":
+                    if depth == 0:
+                        st.blocks[collecting.name] = collecting
+                        collecting = None
+                        continue
+                    depth -= 1
+                collecting.body.append(s)
+                continue
+            if s.what == "block":
+                collecting = _start_block(st, s, file)
+                depth = 0
+            elif s.what == "end":
+                raise InputError("'end' without a block to close", span=Span(file, s.line, s.column, 3), hint="blocks are written: block NAME (PORT, ...) ... end")
+            elif s.what == "include":
                 _include(st, s, file, folder)
             else:
-                handlers[s.what](st, s, file)
+                _dispatch(st, s, file)
         except DcnetError as err:
-            if err.span is None:
-                err.with_span(Span(file, s.line, s.column, len(s.args[0]) if s.args else 1), _src(st, file, s.line))
-            elif err.source_line is None:
-                err.source_line = _src(st, err.span.file, err.span.line)
+            _locate(st, err, s, file)
             raise
+    if collecting is not None:
+        raise InputError(
+            f"block '{collecting.name}' is not closed",
+            span=collecting.span,
+            source_line=_src(st, file, collecting.span.line),
+            hint="add a line with: end",
+        )
+
+
+def _dispatch(st: _State, s: Statement, file: str) -> None:
+    _HANDLERS[s.what](st, s, file)
+
+
+def _locate(st: _State, err: DcnetError, s: Statement, file: str) -> None:
+    if err.span is None:
+        err.with_span(Span(file, s.line, s.column, len(s.args[0]) if s.args else 1), _src(st, file, s.line))
+    elif err.source_line is None:
+        err.source_line = _src(st, err.span.file, err.span.line)
 
 
 def _src(st: _State, file: str, line: int) -> str | None:
@@ -194,12 +256,89 @@ def _title(st, s, file):
     st.net.title = s.args[0]
 
 
-def _unsupported(st, s, file):
-    raise InputError(
-        f"'{s.what}' statements (reusable blocks) are not supported yet",
-        span=Span(file, s.line, s.column, len(s.what)),
-        hint="write the elements out in full for now",
+def _start_block(st: _State, s: Statement, file: str) -> _Block:
+    name, *ports = s.args
+    span = Span(file, *s.arg_pos[0], len(name))
+    if st.scope.depth:
+        raise InputError("a block cannot be defined inside a block instance", span=span)
+    if name in st.blocks:
+        prev = st.blocks[name].span
+        raise InputError(f"block '{name}' is already defined (at {prev})", span=span, hint="each block name is defined once")
+    if name in KINDS or name == "bank":
+        raise InputError(f"'{name}' is an element kind and cannot name a block", span=span, hint="pick another name")
+    if len(set(ports)) != len(ports):
+        raise InputError(f"block '{name}' lists a port twice", span=span)
+    return _Block(name, tuple(ports), [], file, span)
+
+
+_NOT_IN_BLOCKS = ("title", "ground", "include", "part")
+
+
+def _use(st: _State, s: Statement, file: str) -> None:
+    inst, block_name, *nodes = s.args
+    scope = st.scope
+    span = Span(file, *s.arg_pos[1], len(block_name))
+    block = st.blocks.get(block_name)
+    if block is None:
+        near = suggest(block_name, st.blocks)
+        raise UnknownNameError(
+            f"unknown block '{block_name}'",
+            span=span,
+            hint=f"did you mean '{near}'?" if near else "define it first: block NAME (PORT, ...) ... end",
+        )
+    if len(nodes) != len(block.ports):
+        raise InputError(
+            f"block '{block_name}' has {len(block.ports)} port(s) ({', '.join(block.ports)}), but {len(nodes)} node(s) are given",
+            span=span,
+        )
+    if block_name in scope.chain:
+        raise InputError(f"block '{block_name}' uses itself: {' -> '.join(scope.chain + (block_name,))}", span=span)
+    if scope.depth + 1 > st.options.max_block_depth:
+        raise LimitError(
+            f"blocks nest deeper than {st.options.max_block_depth}",
+            span=span,
+            hint="raise the limit with --max-block-depth if the file is trusted",
+        )
+    # parameters: the block's own let names, overridden by key=value on the use line
+    params = {b.args[0]: b for b in block.body if b.what == "let"}
+    overrides: dict[str, Quantity] = {}
+    for p in s.props:
+        if p.key not in params:
+            near = suggest(p.key, params)
+            raise UnknownNameError(
+                f"block '{block_name}' has no parameter '{p.key}'",
+                span=Span(file, p.line, p.column, len(p.key)),
+                hint=(f"did you mean '{near}'? " if near else "") + "parameters are the block's let values: " + (", ".join(params) or "none"),
+            )
+        overrides[p.key] = _quantity(st, p.raw, _value_span(file, p), file)
+    from collections import ChainMap
+
+    local: dict[str, Quantity] = {}
+    inner = _Scope(
+        prefix=scope.name(inst) + ".",
+        ports={port: scope.node(node) for port, node in zip(block.ports, nodes)},
+        env=ChainMap(local, st.env),
+        depth=scope.depth + 1,
+        chain=scope.chain + (block_name,),
     )
+    inner.overrides = overrides  # type: ignore[attr-defined]
+    inner.local = local  # type: ignore[attr-defined]
+    st.scope = inner
+    try:
+        for b in block.body:
+            try:
+                if b.what in _NOT_IN_BLOCKS:
+                    raise InputError(f"'{b.what}' is not allowed inside a block", span=Span(block.file, b.line, b.column, len(b.what)))
+                if b.what == "block":
+                    raise InputError("blocks are defined at the top level, not inside another block", span=Span(block.file, b.line, b.column, 5))
+                _dispatch(st, b, block.file)
+            except DcnetError as err:
+                _locate(st, err, b, block.file)
+                if err.hint is None or "(in " not in err.hint:
+                    err.hint = ((err.hint + " ") if err.hint else "") + f"(in {inner.prefix[:-1]}, placed at {span})"
+                raise
+    finally:
+        st.scope = scope
 
 
 def _let(st: _State, s: Statement, file: str) -> None:
@@ -209,10 +348,18 @@ def _let(st: _State, s: Statement, file: str) -> None:
         raise InputError(f"'{name}' is a keyword and cannot name a value", span=Span(file, nl, nc, len(name)), hint="pick another name")
     if lookup_unit(name) is not None:
         raise InputError(f"'{name}' is a unit and cannot name a value", span=Span(file, nl, nc, len(name)), hint=f"pick another name, e.g. {name}_1")
-    if name in st.env:
+    scope = st.scope
+    target = st.env if scope.depth == 0 else scope.local  # type: ignore[attr-defined]
+    if name in target:
         raise InputError(f"value '{name}' is already defined", span=Span(file, nl, nc, len(name)), hint="each let name is defined once")
     span = Span(file, vl, vc, len(raw))
     tree = parse_value(raw, span, _src(st, file, vl))
+    if scope.depth and name in scope.overrides:  # type: ignore[attr-defined]
+        q = scope.overrides[name]  # type: ignore[attr-defined]
+        if q.dim != _eval(st, tree[1], span).dim:
+            raise DimensionError(f"parameter '{name}' of this block is {dim_name(_eval(st, tree[1], span).dim)}, but the use line gives {dim_name(q.dim)}", span=span)
+        target[name] = q
+        return
     q = _eval(st, tree[1], span)
     tol = None
     if tree[2] is not None:
@@ -226,9 +373,10 @@ def _let(st: _State, s: Statement, file: str) -> None:
                 f"the tolerance of '{name}' is {dim_name(t.dim)}, expected a percentage or {dim_name(q.dim)}",
                 span=span,
             )
-    st.env[name] = q
-    st.net.values[name] = (q.value, q.dim, tol)
-    st.net.exprs[("let", name)] = tree
+    target[name] = q
+    qualified = scope.prefix + name
+    st.net.values[qualified] = (q.value, q.dim, tol)
+    st.net.exprs[("let", qualified)] = tree
 
 
 def _depth(tree) -> int:
@@ -255,7 +403,8 @@ def _eval(st: _State, tree, span: Span) -> Quantity:
             hint="simplify it with let values, or raise the limit with --max-expression-depth",
         )
     try:
-        return evaluate(tree, st.env, lambda w: suggest(w, st.env))
+        env = st.scope.env
+        return evaluate(tree, env, lambda w: suggest(w, list(env)))
     except ExpressionProblem as p:
         raise p.error_class(
             p.message,
@@ -371,19 +520,36 @@ def _kind(st: _State, kind_name: str, file: str, pos) -> Kind:
 
 
 def _element(st: _State, s: Statement, file: str) -> None:
-    kind_name, name, a, b = s.args
+    kind_name, local_name, a, b = s.args
+    if kind_name == "bank":
+        from .banks import expand_bank
+
+        expand_bank(st, s, file)
+        return
     kind = _kind(st, kind_name, file, s.arg_pos[0])
-    net = st.net
-    if net.has_element(name):
-        prev = net.element(name).span
+    name = st.scope.name(local_name)
+    name_span = Span(file, *s.arg_pos[1], len(local_name))
+    _check_new_name(st, name, name_span)
+    values = element_values(st, kind, s.props, file, name, name_span)
+    add_element(st, Element(name, kind.name, (st.scope.node(a), st.scope.node(b)), values, Span(file, s.line, s.column, len(kind_name))))
+
+
+def _check_new_name(st: _State, name: str, span: Span) -> None:
+    if st.net.has_element(name):
+        prev = st.net.element(name).span
         raise InputError(
             f"element name '{name}' is already used (at {prev})",
-            span=Span(file, *s.arg_pos[1], len(name)),
+            span=span,
             hint="element names are unique in a circuit",
         )
+
+
+def element_values(st: _State, kind: Kind, props, file: str, name: str, name_span: Span, extra: dict[str, Any] | None = None) -> dict[str, Any]:
+    """Resolve an element's properties: its own, then its part's, then the kind's defaults;
+    ``extra`` (already resolved) overrides the part. Runs the kind's ``finish``."""
     values: dict[str, Any] = {}
     part_prop = None
-    for p in s.props:
+    for p in props:
         if p.key == "part":
             part_prop = p
             continue
@@ -391,46 +557,52 @@ def _element(st: _State, s: Statement, file: str) -> None:
             raise InputError(f"property '{p.key}' is given twice", span=Span(file, p.line, p.column, len(p.key)))
         values[p.key] = _resolve_prop(st, kind, p, file, name)
     if part_prop is not None:
-        pname = part_prop.raw.strip()
-        part = st.parts.get(pname)
-        if part is None:
-            near = suggest(pname, st.parts)
-            raise UnknownNameError(
-                f"unknown part '{pname}'",
-                span=_value_span(file, part_prop),
-                hint=f"did you mean '{near}'?" if near else "define it first with: part NAME KIND key=value ...",
-            )
-        if part[0] != kind.name:
-            raise InputError(
-                f"part '{pname}' is a {part[0]}, but {name} is a {kind.name}",
-                span=_value_span(file, part_prop),
-            )
-        merged = dict(part[1])
+        merged = dict(_part_values(st, kind, part_prop.raw.strip(), name, _value_span(file, part_prop)))
         merged.update(values)
         values = merged
+    if extra:
+        values.update(extra)
     for spec in kind.props.values():
         if spec.name not in values:
             if spec.required:
                 raise InputError(
                     f"{kind.name} {name} needs {spec.name}= ({spec.doc})",
-                    span=Span(file, *s.arg_pos[1], len(name)),
+                    span=name_span,
                     hint=f"add {spec.name}=... to the line",
                 )
             if spec.default is not None:
                 values[spec.name] = spec.default
     try:
-        values = kind.finish(values)
+        return kind.finish(values)
     except DcnetError as err:
-        err.with_span(Span(file, *s.arg_pos[1], len(name)), _src(st, file, s.line))
+        err.with_span(name_span, _src(st, file, name_span.line))
         if err.element is None:
             err.element = name
         raise
-    if len(net.elements) >= st.options.max_elements:
+
+
+def _part_values(st: _State, kind: Kind, pname: str, owner: str, span: Span) -> dict[str, Any]:
+    part = st.parts.get(pname)
+    if part is None:
+        near = suggest(pname, st.parts)
+        raise UnknownNameError(
+            f"unknown part '{pname}'",
+            span=span,
+            hint=f"did you mean '{near}'?" if near else "define it first with: part NAME KIND key=value ...",
+        )
+    if part[0] != kind.name:
+        raise InputError(f"part '{pname}' is a {part[0]}, but {owner} is a {kind.name}", span=span)
+    return part[1]
+
+
+def add_element(st: _State, element: Element) -> None:
+    """Add a finished element to the netlist, within the element-count limit."""
+    if len(st.net.elements) >= st.options.max_elements:
         raise LimitError(
             f"more than {st.options.max_elements:,} elements",
             hint="raise the limit with --max-elements if the file is trusted",
         )
-    net.add(Element(name, kind.name, (a, b), values, Span(file, s.line, s.column, len(kind_name))))
+    st.net.add(element)
 
 
 def _ground(st: _State, s: Statement, file: str) -> None:
@@ -497,13 +669,27 @@ def _limit(st: _State, s: Statement, file: str) -> None:
                 span=Span(file, p.line, p.column, len(p.key)),
                 hint=(f"did you mean '{near}'? " if near else "") + "it takes: " + ", ".join(props),
             )
+        scope = st.scope
         if form == "quantity":
             values[p.key] = _quantity(st, p.raw, _value_span(file, p), file)
         elif form == "words":
-            values[p.key] = tuple(w.strip() for w in p.raw.split(",") if w.strip())
+            values[p.key] = tuple(scope.name(w.strip()) for w in p.raw.split(",") if w.strip())
         else:
-            values[p.key] = p.raw.strip()
+            values[p.key] = scope.node(p.raw.strip())
     st.net.limits.append(Limit(rule, values, Span(file, s.line, s.column, len(rule))))
+
+
+_HANDLERS.update(
+    {
+        "element": _element,
+        "let": _let,
+        "part": _part,
+        "ground": _ground,
+        "title": _title,
+        "limit": _limit,
+        "use": _use,
+    }
+)
 
 
 # ------------------------------------------------------------------ finish

@@ -54,7 +54,7 @@ HAND_WRITTEN = {
     "title-unquoted": "title Hillside cabin\n",
     "limit-unknown-rule": "cell A a gnd emf=12V r=10mOhm\nlimit imbalanse max=10% among=A\n",
     "limit-bad-key": "cell A a gnd emf=12V r=10mOhm\nlimit drop max=3% form=a to=gnd\n",
-    "block-not-yet": "block string (p, n)\n",
+    "block-not-closed": "block string (p, n)\n",
     "soc-above-full": "cell A a gnd emf=12V r=10mOhm soc=120%\n",
     "part-of-other-kind": "part p cell emf=12V r=10mOhm\nload L a gnd part=p\n",
     "part-uses-part": "part p cell emf=12V r=10mOhm\npart q cell part=p\n",
