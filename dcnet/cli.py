@@ -68,6 +68,19 @@ def _parser() -> argparse.ArgumentParser:
         "ELEMENT.<extra> (e.g. P1.drop_pct), or NODE,NODE for the voltage between two nodes",
     )
     _add_input_options(s)
+
+    c = sub.add_parser("check", help="solve and check circuit files: a verdict table, worst first (exit 1 if any check fails)")
+    c.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn), folders or patterns; - reads standard input")
+    c.add_argument("--format", choices=("table", "json", "csv", "markdown"), default="table", help="output format (default: table)")
+    c.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input)")
+    c.add_argument("--all", action="store_true", help="list passing checks too (default: all of them for one file)")
+    _add_input_options(c)
+
+    lay = sub.add_parser("layouts", help="solve a bank with its main leads tapped at the same end, opposite ends and the centre, side by side")
+    lay.add_argument("file", metavar="FILE")
+    lay.add_argument("--bank", metavar="NAME", help="which bank (default: every bank in the file)")
+    lay.add_argument("--format", choices=("table", "json"), default="table")
+    _add_input_options(lay)
     return p
 
 
@@ -103,6 +116,10 @@ def main(argv: list[str] | None = None) -> int:
     try:
         if args.command == "solve":
             return _cmd_solve(args)
+        if args.command == "check":
+            return _cmd_check(args)
+        if args.command == "layouts":
+            return _cmd_layouts(args)
     except DcnetError as err:
         print(f"dcnet: {err.render()}", file=sys.stderr)
         return EXIT_BAD_INPUT
@@ -138,8 +155,92 @@ def _solve_one(path: str, options):
 
 
 def _status(sol) -> int:
-    if any(not c.get("ok", True) for c in sol.checks):
-        return EXIT_CHECK_FAILED
+    return EXIT_CHECK_FAILED if sol.failed else EXIT_OK
+
+
+# ------------------------------------------------------------------- check
+def _cmd_check(args) -> int:
+    from .files import expand_inputs
+    from .report import text as rt
+
+    options = _options(args)
+    files = expand_inputs(args.files)
+    out = _Output()
+    worst = EXIT_OK
+    records = []
+    counts = {"passed": 0, "failed": 0, "refused": 0}
+    for path in files:
+        sol, err = _solve_one(path, options)
+        if err is not None:
+            print(err.render(), file=sys.stderr)
+            worst = EXIT_BAD_INPUT
+            counts["refused"] += 1
+            records.append({"file": path, "status": "refused", "error": str(err), "checks": []})
+            continue
+        status = _status(sol)
+        worst = max(worst, status)
+        counts["failed" if status else "passed"] += 1
+        records.append({"file": path, "status": "failed" if status else "passed", "checks": sol.checks, "title": sol.netlist.title})
+        for w in sol.warnings:
+            print(f"dcnet: warning: {path}: {w}", file=sys.stderr)
+    if args.format == "json":
+        out.write(json.dumps(records[0] if len(records) == 1 else {"files": records, "summary": counts}, indent=2) + "\n")
+    elif args.format == "csv":
+        import csv
+        import io
+
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow(["file", "verdict", "rule", "subject", "value", "limit", "unit", "source", "detail"])
+        for r in records:
+            for c in r["checks"]:
+                word = "info" if c["sense"] == "info" else ("pass" if c["ok"] else "fail")
+                w.writerow([r["file"], word, c["rule"], c["subject"], c["value"], c["limit"], c["unit"], c["source"], c["detail"]])
+        out.write(buf.getvalue())
+    else:
+        for r in records:
+            if r["status"] == "refused":
+                continue
+            if args.format == "markdown":
+                out.write(f"## {r.get('title') or r['file']}\n\n`{r['file']}`: checks {r['status']}\n\n")
+                out.write(rt.verdict_markdown(r["checks"]) + "\n\n")
+            else:
+                out.write(f"{r['file']}" + (f"  {r['title']}" if r.get("title") else "") + f": checks {r['status'].upper()}\n")
+                brief = len(files) > 1 and not args.all
+                out.write("\n".join(rt.verdict_lines(r["checks"], brief=brief)) + "\n\n")
+        if len(files) > 1:
+            out.write(f"{len(files)} files: {counts['passed']} passed every check, {counts['failed']} failed a check, {counts['refused']} refused\n")
+        out.write(("> " if args.format == "markdown" else "") + rt.wrapped_caution() + "\n")
+    out.finish(args, files)
+    return worst
+
+
+# ----------------------------------------------------------------- layouts
+def _cmd_layouts(args) -> int:
+    from .analysis.layouts import compare_taps
+    from .report import text as rt
+
+    options = _options(args)
+    path = args.file
+    try:
+        tables = compare_taps(path, options, only=args.bank)
+    except DcnetError as err:
+        print(err.render(), file=sys.stderr)
+        return EXIT_BAD_INPUT
+    if args.format == "json":
+        print(json.dumps(tables, indent=2))
+        return EXIT_OK
+    for t in tables:
+        print(f"bank {t['bank']}: {t['series']}s{t['parallel']}p, string currents by tap position (A, discharge positive)")
+        header = ["string"] + [lay["tap"] for lay in t["layouts"]]
+        rows = [header]
+        for j in range(t["parallel"]):
+            rows.append([f"s{j + 1}"] + [f"{lay['string_currents_A'][j]:.4g}" for lay in t["layouts"]])
+        rows.append(["imbalance"] + [("-" if lay["imbalance_pct"] is None else f"{lay['imbalance_pct']:.2f} %") for lay in t["layouts"]])
+        rows.append(["bank voltage"] + [f"{lay['bank_voltage_V']:.4g} V" for lay in t["layouts"]])
+        print("\n".join(rt.columns(rows, right=set(range(1, len(header))))))
+        print()
+    print(rt.wrapped_caution())
     return EXIT_OK
 
 

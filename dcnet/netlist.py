@@ -134,8 +134,15 @@ class Netlist:
         return self._cache[key]
 
     # ------------------------------------------------------------- analysis
-    def solve(self, **options):
-        """Solve the circuit; see :func:`dcnet.analysis.solve.solve`."""
+    def solve(self, checks: bool = True, **options):
+        """Solve the circuit and (by default) run the installation checks.
+
+        See :func:`dcnet.analysis.solve.solve` for the options; the checks' verdicts are in
+        ``Solution.verdicts`` (objects) and ``Solution.checks`` (dicts, as in the JSON output).
+        """
         from .analysis.solve import solve
 
-        return solve(self, **options)
+        sol = solve(self, **options)
+        if checks:
+            sol.run_checks()
+        return sol

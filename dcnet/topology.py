@@ -108,7 +108,9 @@ def _shorted(net: Netlist, bt: BranchTable) -> list[str]:
 
 def _dangling(bt: BranchTable) -> list[str]:
     """Elements on dead ends (a chain that leads nowhere): they carry no current."""
-    m = bt.connecting & (bt.a != bt.b)
+    # anything that can carry current counts, current sources included (they are no
+    # connection for potentials, but a constant-current load at the end of a feeder is no dead end)
+    m = (bt.connecting | (bt.c != 0)) & (bt.a != bt.b)
     alive = m.copy()
     n = bt.n_nodes
     while True:

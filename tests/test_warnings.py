@@ -38,6 +38,12 @@ def test_dead_end_warning():
     assert any("R1, R2 lead nowhere" in w for w in sol.warnings)
 
 
+def test_feeder_to_a_constant_current_load_is_no_dead_end():
+    sol = solve("cell C a b emf=12V r=1Ohm\nfuse F a c rating=10A\nload L c b current=2A\n")
+    assert sol.current("F") == pytest.approx(2.0)
+    assert not any("dead end" in w for w in sol.warnings)
+
+
 def test_shorted_cell_is_flagged_as_danger():
     sol = solve("cell C a b emf=12V r=10mOhm\nlink K a c\nlink J c b\nload L a b r=1Ohm\n")
     # the cell drives E/r = 1200 A into the short (Ohm's law)

@@ -39,6 +39,10 @@ class Solution:
         self.balance = balance
         self.warnings = list(warnings)
         self.checks: list[dict] = []
+        self.verdicts: list = []
+        #: the assembled system and its factorisation (reused by fault-current checks and equivalents)
+        self.system = None
+        self.factor = None
         self._extras: dict[str, dict[str, np.ndarray]] | None = None
         self._states: np.ndarray | None = None
 
@@ -46,6 +50,19 @@ class Solution:
     def _pos(self) -> dict[str, int]:
         """Element name -> position (built on first lookup; the netlist already has it)."""
         return self.netlist._by_name
+
+    def run_checks(self) -> list:
+        """Run the installation checks (dcnet.checks) and keep their verdicts."""
+        from ..checks import run
+
+        self.verdicts = run(self.netlist, self)
+        self.checks = [v.to_dict() for v in self.verdicts]
+        return self.verdicts
+
+    @property
+    def failed(self) -> bool:
+        """True if any check failed."""
+        return any(not c["ok"] for c in self.checks)
 
     # ------------------------------------------------------------ lookups
     def _element_pos(self, name: str) -> int:

@@ -227,4 +227,6 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
         warnings.append(
             f"self-check residuals are larger than usual (Kirchhoff {balance['kcl_relative']:.2g}, power {balance['power_relative']:.2g} relative)"
         )
-    return Solution(net, bt, pot, v, i, balance, warnings)
+    sol = Solution(net, bt, pot, v, i, balance, warnings)
+    sol.system, sol.factor = system, factor
+    return sol

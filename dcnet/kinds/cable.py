@@ -1,10 +1,24 @@
 """``cable``: one conductor whose resistance follows from metal, cross-section, length and temperature.
 
-``R = rho20 * (1 + alpha * (temp - 20 degC)) * length / area``, with ``rho20``
-and ``alpha`` from ``dcnet/data/metals.tsv`` and the area from ``size`` (mm²)
-or an AWG ``gauge`` (ASTM B258 diameters). ``r=`` gives a resistance per length
-instead. A cable is one conductor: a two-wire run is two cables (or twice the
-length).
+Two models, chosen with ``model=``:
+
+``resistivity`` (the default)
+    ``R = rho20 * (1 + alpha * (temp - 20 degC)) * length / area``, with ``rho20``
+    and ``alpha`` from ``dcnet/data/metals.tsv`` and the area from ``size`` (mm²)
+    or an AWG ``gauge`` (ASTM B258 diameters).
+``table`` (copper only)
+    a ``size`` uses the IEC 60228 maximum resistance at 20 degC of its ``class``
+    (2 stranded, 5 flexible; default 5, as battery cables usually are flexible);
+    a ``gauge`` uses NEC Chapter 9 Table 8 (stranded, at 75 degC). Either is
+    corrected to ``temp`` by the metal's linear temperature law referred to
+    20 degC: ``R(T) = R(T0) * (1 + alpha*(T - 20)) / (1 + alpha*(T0 - 20))``, so at
+    the table's own temperature the result is exactly the tabulated value times
+    the length. A size the table does not list is refused, naming the sizes it has.
+
+``r=`` gives a resistance per length instead of either model. ``insulation`` is
+the temperature rating of the insulation (default 75 degC), kept for the ampacity
+lookup (``dcnet.data.ampacity``); it does not change the resistance. A cable is
+one conductor: a two-wire run is two cables (or twice the length).
 """
 
 from __future__ import annotations
@@ -14,12 +28,12 @@ import re
 
 import numpy as np
 
-from ..data import metals
+from ..data import awg_name, iec60228_table, iec60228_max_resistance, metals, nec_table8, nec_table8_resistance
 from ..errors import InputError, ValueRangeError
 from ..units import AREA, LENGTH, RESISTANCE_PER_LENGTH, TEMPERATURE
 from .base import Kind, Prop, admittance, nonnegative, positive
 
-__all__ = ["awg_diameter", "awg_area", "conductor_resistance", "KIND"]
+__all__ = ["awg_diameter", "awg_area", "conductor_resistance", "table_resistance", "KIND"]
 
 _METAL_ALIASES = {"cu": "copper", "al": "aluminium", "aluminum": "aluminium"}
 _GAUGE = re.compile(r"^\s*(\d+)(?:\s*/\s*0)?\s*$")
@@ -56,10 +70,54 @@ def conductor_resistance(length: float, area: float, metal: str = "copper", temp
     return rho20 * (1.0 + alpha * (temp - 20.0)) * length / area
 
 
+def _temperature_factor(metal: str, temp: float, table_temp: float) -> float:
+    """Resistance at ``temp`` over resistance at ``table_temp`` (linear law with alpha at 20 degC)."""
+    _, alpha, _ = metals()[metal]
+    return (1.0 + alpha * (temp - 20.0)) / (1.0 + alpha * (table_temp - 20.0))
+
+
+def table_resistance(
+    length: float, *, area: float | None = None, awg: int | None = None, cls: int = 5, temp: float = 20.0
+) -> tuple[float, str]:
+    """Resistance in ohms of one copper conductor from the published tables, and the table's source.
+
+    An AWG number (``awg``; 0 is 1/0, -3 is 4/0) uses NEC Chapter 9 Table 8 (75 degC); otherwise
+    ``area`` (m²) uses the IEC 60228 maximum of class ``cls`` (20 degC). Both are corrected to
+    ``temp`` with copper's temperature coefficient. A size the table does not list is an
+    :class:`InputError` naming the sizes it has.
+    """
+    if awg is not None:
+        found = nec_table8_resistance(awg)
+        if found is None:
+            sizes = ", ".join(awg_name(n) for n in sorted(nec_table8(), reverse=True))
+            raise InputError(
+                f"AWG {awg_name(awg)} is not in NEC Chapter 9 Table 8 as dcnet has it (sizes: {sizes})",
+                hint="use a tabulated gauge, or model=resistivity",
+            )
+        per_m, source = found
+        table_temp = 75.0
+    else:
+        if cls not in (2, 5):
+            raise InputError(f"IEC 60228 class {cls} is not in dcnet's table", hint="class=2 (stranded) or class=5 (flexible)")
+        found = iec60228_max_resistance(area, cls)
+        if found is None:
+            sizes = ", ".join(f"{s:g}" for s in sorted(iec60228_table()))
+            raise InputError(
+                f"{area * 1e6:g} mm2 is not a size in the IEC 60228 table (sizes: {sizes} mm2)",
+                hint="use a tabulated size, or model=resistivity",
+            )
+        per_m, source = found
+        table_temp = 20.0
+    return per_m * _temperature_factor("copper", temp, table_temp) * length, source
+
+
 class Cable(Kind):
     def finish(self, values):
         metal = _METAL_ALIASES.get(values["metal"], values["metal"])
         values["metal"] = metal
+        values["class"] = int(values["class"])
+        if values["insulation"] < -273.15:
+            raise ValueRangeError(f"insulation={values['insulation']:g} degC is below absolute zero")
         has_size, has_gauge, has_r = "size" in values, "gauge" in values, "r" in values
         if has_size and has_gauge:
             raise InputError("a cable takes size= or gauge=, not both", hint="keep one of them")
@@ -81,7 +139,17 @@ class Cable(Kind):
         temp = values["temp"]
         if temp < -273.15:
             raise ValueRangeError(f"temp={temp:g} degC is below absolute zero")
-        values["r"] = conductor_resistance(length, values["area"], metal, temp)
+        if values["model"] == "table":
+            if metal != "copper":
+                raise InputError(
+                    f"model=table has tables for copper only, not {metal}",
+                    hint="use model=resistivity for this metal",
+                )
+            values["r"], values["table_source"] = table_resistance(
+                length, area=values["area"], awg=values.get("awg"), cls=values["class"], temp=temp
+            )
+        else:
+            values["r"] = conductor_resistance(length, values["area"], metal, temp)
         values["r_per_m"] = values["r"] / length if length else 0.0
         return values
 
@@ -104,6 +172,15 @@ KIND = Cable(
         "metal": Prop("metal", form="word", words=("copper", "aluminium", "aluminum", "cu", "al"), default="copper", doc="conductor metal"),
         "temp": Prop("temp", TEMPERATURE, default=20.0, doc="conductor temperature"),
         "r": Prop("r", RESISTANCE_PER_LENGTH, check=nonnegative, doc="resistance per length (overrides the model)"),
+        "model": Prop(
+            "model", form="word", words=("resistivity", "table"), default="resistivity",
+            doc="resistance model: resistivity (rho x length / area) or table (IEC 60228 / NEC Table 8)",
+        ),
+        "class": Prop(
+            "class", form="word", words=("2", "5"), default="5",
+            doc="IEC 60228 conductor class for model=table with size=: 2 stranded, 5 flexible (default)",
+        ),
+        "insulation": Prop("insulation", TEMPERATURE, default=75.0, doc="insulation temperature rating, for ampacity"),
     },
     columns=("r", "length"),
 )

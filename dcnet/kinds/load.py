@@ -45,6 +45,7 @@ KIND = Load(
         "current": Prop("current", CURRENT, doc="constant current drawn (first node to second)"),
         "power": Prop("power", POWER, check=positive, doc="constant power drawn"),
         "vmin": Prop("vmin", VOLTAGE, doc="lowest working voltage"),
+        "critical": Prop("critical", form="word", words=("yes", "no"), default="no", doc="a critical load (3 % drop limit instead of 10 %)"),
     },
     columns=("r", "current", "vmin"),
     busy_word="drawing",

@@ -148,7 +148,7 @@ def expand_bank(st, s, file: str) -> None:
 
         rng = np.random.default_rng(int(values.get("seed", 1)))
 
-    tap = values["tap"].replace("center", "centre")
+    tap = (st.options.tap_override or values["tap"]).replace("center", "centre")
     tp, tn = {"same": (1, 1), "opposite": (1, P), "centre": ((P + 1) // 2, (P + 1) // 2)}[tap]
     POS, NEG = scope.node(pos), scope.node(neg)
     has_bus = "bus" in values and P > 1

@@ -55,6 +55,8 @@ class Options:
     max_expression_depth: int = 256
     max_block_depth: int = 16  # nesting of block instances (a block that uses a block ...)
     allow_outside: bool = False  # includes outside the top file's folder tree
+    #: solve every bank with its main leads at this tap position (same, opposite, centre), whatever the file says
+    tap_override: str | None = None
 
 
 @dataclass

@@ -11,7 +11,7 @@ import io
 import math
 from typing import Any
 
-__all__ = ["si", "CAUTION", "wrapped_caution", "table", "markdown", "csv_text", "show_lines", "columns"]
+__all__ = ["si", "CAUTION", "wrapped_caution", "verdict_lines", "verdict_markdown", "table", "markdown", "csv_text", "show_lines", "columns"]
 
 CAUTION = (
     "Caution: these figures come from a model and are no substitute for measurement. A battery bank "
@@ -118,11 +118,7 @@ def table(result: dict[str, Any], file: str | None = None) -> str:
     out += _balance_lines(result["balance"])
     if result.get("checks"):
         out.append("")
-        out.append("Checks")
-        rows = [["rule", "subject", "value", "limit", "verdict"]]
-        for c in result["checks"]:
-            rows.append([str(c.get("rule")), str(c.get("subject")), str(c.get("value")), str(c.get("limit")), "pass" if c.get("ok") else "FAIL"])
-        out += columns(rows)
+        out += verdict_lines(result["checks"], brief=True)
     if result.get("warnings"):
         out.append("")
         out.append("Warnings")
@@ -136,6 +132,58 @@ def wrapped_caution(width: int = 100) -> str:
     import textwrap
 
     return textwrap.fill(CAUTION, width)
+
+
+def _word(c: dict, md: bool = False) -> str:
+    if c.get("sense") == "info":
+        return "info"
+    if c["ok"]:
+        return "pass"
+    return "**FAIL**" if md else "FAIL"
+
+
+def _fmt(value, unit: str) -> str:
+    if value is None:
+        return "-"
+    if isinstance(value, float) and not math.isfinite(value):
+        return "unlimited"
+    return si(value, unit)
+
+
+def _limit_text(c: dict) -> str:
+    if c.get("limit") is None:
+        return "-"
+    sign = {"max": "<= ", "min": ">= "}.get(c.get("sense", "max"), "")
+    return sign + _fmt(c["limit"], c["unit"])
+
+
+def verdict_lines(checks: list[dict], brief: bool = False, shown: int = 12) -> list[str]:
+    """The verdict table, worst first. ``brief`` shows the failures and the closest passes only."""
+    failed = [c for c in checks if not c["ok"]]
+    rows = [["verdict", "rule", "subject", "value", "limit", "source"]]
+    listed = checks if not brief else failed + [c for c in checks if c["ok"]][: max(0, shown - len(failed))]
+    for c in listed:
+        rows.append([_word(c), c["rule"], c["subject"], _fmt(c["value"], c["unit"]), _limit_text(c), _short(c["source"])])
+    head = f"Checks: {len(checks)} run, {len(failed)} failed" + (" (worst first)" if checks else "")
+    out = [head] + columns(rows, right={3, 4})
+    details = [c for c in listed if c.get("detail") and (not c["ok"] or c["rule"] in ("fault current", "imbalance"))]
+    for c in details:
+        out.append(f"  {c['subject']}: {c['detail']}")
+    if brief and len(listed) < len(checks):
+        out.append(f"  ... {len(checks) - len(listed)} more passed; 'dcnet check' lists every check")
+    return out
+
+
+def verdict_markdown(checks: list[dict]) -> str:
+    """The verdict table as Markdown, worst first."""
+    out = ["| verdict | rule | subject | value | limit | source |", "|---|---|---|---:|---:|---|"]
+    for c in checks:
+        out.append(f"| {_word(c, md=True)} | {c['rule']} | `{c['subject']}` | {_fmt(c['value'], c['unit'])} | {_limit_text(c)} | {c['source']} |")
+    return "\n".join(out)
+
+
+def _short(text: str, width: int = 70) -> str:
+    return text if len(text) <= width else text[: width - 3] + "..."
 
 
 def _balance_lines(bal: dict[str, Any]) -> list[str]:
@@ -163,9 +211,7 @@ def markdown(result: dict[str, Any], file: str | None = None) -> str:
         )
     out += [""] + _balance_lines(result["balance"])
     if result.get("checks"):
-        out += ["", "## Checks", "", "| rule | subject | value | limit | verdict |", "|---|---|---|---|---|"]
-        for c in result["checks"]:
-            out.append(f"| {c.get('rule')} | {c.get('subject')} | {c.get('value')} | {c.get('limit')} | {'pass' if c.get('ok') else '**FAIL**'} |")
+        out += ["", "## Checks", "", verdict_markdown(result["checks"])]
     if result.get("warnings"):
         out += ["", "## Warnings", ""] + [f"- {w}" for w in result["warnings"]]
     out += ["", f"> {CAUTION}", ""]

@@ -295,3 +295,154 @@ def test_circular_mil_formula_for_a_boat_feeder():
     assert drop == pytest.approx(allowed * k_model / 10.75, rel=1e-9)
     # the two resistivities agree within 5 % (a tolerance of ours)
     assert k_model == pytest.approx(10.75, rel=0.05)
+
+
+# --------------------------------------------------------------------------- model=table
+
+_ALPHA_CU = 0.00393  # /K at 20 degC (Industrial Power Engineering and Applications Handbook, Table 30.1; secondary)
+
+
+def _cable_values(props: str, *, length: str = "10m") -> dict:
+    """The elaborated values of one cable (no solve)."""
+    net = dcnet.parse(f"source V1 a gnd emf=12V\ncable W1 a b length={length} {props}\nload L b gnd r=1Ohm\n")
+    return net.element("W1").values
+
+
+@pytest.mark.parametrize("gauge", list(NEC_TABLE8_75C))
+def test_table_model_gauge_is_nec_table8_at_75_degrees(gauge):
+    # model=table with a gauge is NEC Chapter 9 Table 8 (secondary), given at 75 degC: at 75 degC the
+    # cable's resistance is exactly the tabulated Ohm per 1000 ft times 1000 ft
+    res = _cable(f"gauge={gauge} model=table temp=75degC", length="1000ft")
+    assert res["resistance_ohm"] == pytest.approx(NEC_TABLE8_75C[gauge], rel=1e-12)
+    # and times any other length (R proportional to length)
+    res = _cable(f"gauge={gauge} model=table temp=75degC", length="250ft")
+    assert res["resistance_ohm"] == pytest.approx(NEC_TABLE8_75C[gauge] / 4, rel=1e-12)
+
+
+@pytest.mark.parametrize("size", sorted(IEC60228_CLASS2))
+def test_table_model_size_is_iec60228_at_20_degrees(size):
+    # model=table with a size is the IEC 60228 maximum (secondary) of the cable's class at 20 degC,
+    # times the length; the default class is 5 (flexible)
+    default = _cable(f"size={size}mm2 model=table", length="1km")
+    assert default["resistance_ohm"] == pytest.approx(IEC60228_CLASS5[size], rel=1e-12)
+    c5 = _cable(f"size={size}mm2 model=table class=5 temp=20degC", length="1km")
+    assert c5["resistance_ohm"] == pytest.approx(IEC60228_CLASS5[size], rel=1e-12)
+    c2 = _cable(f"size={size}mm2 model=table class=2", length="20m")
+    assert c2["resistance_ohm"] == pytest.approx(IEC60228_CLASS2[size] * 0.020, rel=1e-12)
+
+
+def test_table_model_temperature_correction():
+    # IEC 60228 values are at 20 degC; the linear law with alpha = 0.00393 /K (handbook, secondary)
+    # takes 25 mm2 class 5 (0.780 Ohm/km, IEC 60228 secondary) to 60 degC
+    hot = _cable("size=25mm2 model=table temp=60degC", length="1km")
+    assert hot["resistance_ohm"] == pytest.approx(0.780 * (1 + _ALPHA_CU * 40), rel=1e-12)
+    # NEC Table 8 values are at 75 degC; the same law referred to 20 degC takes 4/0 (0.0608 Ohm per
+    # 1000 ft, NEC secondary) down to 20 degC ...
+    cold = _cable("gauge=4/0 model=table", length="1000ft")
+    assert cold["resistance_ohm"] == pytest.approx(0.0608 / (1 + _ALPHA_CU * 55), rel=1e-12)
+    # ... and to 90 degC
+    hot = _cable("gauge=4/0 model=table temp=90degC", length="1000ft")
+    assert hot["resistance_ohm"] == pytest.approx(0.0608 * (1 + _ALPHA_CU * 70) / (1 + _ALPHA_CU * 55), rel=1e-12)
+
+
+def test_table_model_lies_above_the_resistivity_model():
+    # IEC 60228 (secondary) maxima and NEC Table 8 (secondary, stranded) both lie above resistivity x
+    # length / nominal area (see tests/data/test_tables.py), so a table cable has more resistance
+    # than the same cable with the default model, at any temperature
+    for props in ("size=25mm2", "size=25mm2 class=2", "gauge=4", "gauge=2/0"):
+        for temp in ("-20degC", "20degC", "75degC"):
+            table = _cable(f"{props} model=table temp={temp}", length="10m")["resistance_ohm"]
+            model = _cable(f"{props} temp={temp}", length="10m")["resistance_ohm"]
+            assert table > model
+
+
+def test_new_properties_are_kept_in_the_values():
+    v = _cable_values("size=25mm2")
+    # defaults: the resistivity model, IEC class 5 (flexible, as battery cables usually are) and
+    # 75 degC insulation
+    assert (v["model"], v["class"], v["insulation"]) == ("resistivity", 5, 75.0)
+    v = _cable_values("size=25mm2 model=table class=2 insulation=90degC")
+    assert (v["model"], v["class"], v["insulation"]) == ("table", 2, 90.0)
+    # the derived values stay as they were: total ohms and ohms per metre (IEC 60228 class 2, 0.727 Ohm/km)
+    assert v["r"] == pytest.approx(0.727e-3 * 10, rel=1e-12)
+    assert v["r_per_m"] == pytest.approx(0.727e-3, rel=1e-12)
+    assert "IEC 60228" in v["table_source"]
+    # the insulation rating does not change the resistance
+    assert _cable_values("size=25mm2 insulation=105degC")["r"] == _cable_values("size=25mm2")["r"]
+
+
+def test_table_model_and_per_length_override():
+    # r= wins over either model (a measured or tabulated value stands as given)
+    res = _cable("size=25mm2 model=table r=1mOhm/m", length="10m")
+    assert res["resistance_ohm"] == pytest.approx(0.01, rel=1e-12)
+
+
+def test_table_model_round_trip():
+    from dcnet.language import to_text
+
+    text = "source V1 a gnd emf=12V\ncable W1 a b length=3m size=35mm2 model=table class=2 insulation=90degC temp=40degC\nload L b gnd r=1Ohm\n"
+    net = dcnet.parse(text)
+    again = dcnet.parse(to_text(net))
+    assert again.element("W1").values == net.element("W1").values
+
+
+def test_table_model_in_a_two_string_bank():
+    """Two 12 V strings on unequal table cables: the split follows the tabulated resistances."""
+    sol = dcnet.parse(
+        "\n".join(
+            [
+                "source A a gnd emf=12V",
+                "source B b gnd emf=12V",
+                "cable PA a bus length=2m size=35mm2 model=table",
+                "cable PB b bus length=2m gauge=2 model=table temp=75degC",
+                "load L bus gnd current=100A",
+                "ground gnd",
+            ]
+        )
+    ).solve()
+    ra = 0.554e-3 * 2  # IEC 60228 class 5, 35 mm2 at 20 degC (secondary)
+    rb = 0.194 / 1000 / 0.3048 * 2  # NEC Table 8, 2 AWG at 75 degC (secondary); 1 ft = 0.3048 m
+    # equal EMFs in parallel: currents divide inversely to the resistances (current divider)
+    assert -sol.current("A") == pytest.approx(100 * rb / (ra + rb), rel=1e-9)
+    assert -sol.current("B") == pytest.approx(100 * ra / (ra + rb), rel=1e-9)
+
+
+def test_table_resistance_function():
+    from dcnet.kinds.cable import table_resistance
+
+    r, source = table_resistance(1000.0, area=10 * MM2, cls=2)
+    assert r == pytest.approx(1.83, rel=1e-12)  # IEC 60228 class 2, 10 mm2 (secondary)
+    assert source == "IEC 60228 (secondary), class 2"
+    r, source = table_resistance(304.8, awg=10, temp=75.0)
+    assert r == pytest.approx(1.24, rel=1e-12)  # NEC Table 8, 10 AWG (secondary)
+    assert "Table 8" in source
+
+
+@pytest.mark.parametrize(
+    "props, error, phrase, hint",
+    [
+        ("size=25mm2 model=tabel", "UnknownNameError", "'tabel' is not a known model", "did you mean 'table'"),
+        ("size=25mm2 model=nec", "UnknownNameError", "'nec' is not a known model", "resistivity, table"),
+        ("size=25mm2 model=table class=3", "UnknownNameError", "'3' is not a known class", "2, 5"),
+        ("size=25mm2 model=table class=flexible", "UnknownNameError", "'flexible' is not a known class", "2, 5"),
+        ("size=26mm2 model=table", "InputError", "26 mm2 is not a size in the IEC 60228 table", "model=resistivity"),
+        ("size=185mm2 model=table class=2", "InputError", "1.5, 2.5, 4, 6, 10, 16, 25, 35, 50, 70, 95, 120 mm2", None),
+        ("gauge=3 model=table", "InputError", "AWG 3 is not in NEC Chapter 9 Table 8", "model=resistivity"),
+        ("gauge=16 model=table", "InputError", "14, 12, 10, 8, 6, 4, 2, 1/0, 2/0, 4/0", None),
+        ("size=25mm2 metal=aluminium model=table", "InputError", "copper only", "model=resistivity"),
+        ("size=25mm2 insulation=90V", "DimensionError", "insulation", None),
+        ("size=25mm2 insulation=-300degC", "ValueRangeError", "below absolute zero", None),
+    ],
+)
+def test_table_model_refusals(props, error, phrase, hint):
+    from dcnet import errors
+
+    with pytest.raises(getattr(errors, error)) as info:
+        _cable(props)
+    err = info.value
+    assert type(err).__name__ == error
+    assert phrase in err.message
+    if hint is not None:
+        assert hint in (err.hint or "")
+    assert err.line == 2  # the cable's line
+    assert err.render()  # renders for the command line without a traceback
