@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import gc
 import os
+import re
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -348,6 +349,12 @@ def _let(st: _State, s: Statement, file: str) -> None:
     (nl, nc), (vl, vc) = s.arg_pos
     if name in KEYWORDS or name in KINDS:
         raise InputError(f"'{name}' is a keyword and cannot name a value", span=Span(file, nl, nc, len(name)), hint="pick another name")
+    if not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", name):
+        raise InputError(
+            f"'{name}' cannot name a value: value names hold letters, digits and '_' only",
+            span=Span(file, nl, nc, len(name)),
+            hint="expressions read '-', '+' and '.' as arithmetic; e.g. let r_int = 4.5mOhm",
+        )
     if lookup_unit(name) is not None:
         raise InputError(f"'{name}' is a unit and cannot name a value", span=Span(file, nl, nc, len(name)), hint=f"pick another name, e.g. {name}_1")
     scope = st.scope

@@ -371,14 +371,14 @@ def _diagnose_line(src: str, column: int):
             len(head[4]),
             "an element line is KIND NAME NODE NODE key=value ...; a value with blanks must follow '=' directly",
         )
-    bad = [w for w in head if not re.fullmatch(r"[A-Za-z0-9_][A-Za-z0-9_.]*[+\-]?", w)]
+    bad = [w for w in head if not re.fullmatch(r"[A-Za-z0-9_][A-Za-z0-9_.+\-]*", w)]
     if bad:
         col = src.find(bad[0], indent)
         return (
             f"'{bad[0]}' is not a valid name",
             col + 1,
             len(bad[0]),
-            "names hold letters, digits, '_' and '.', and may end in '+' or '-'",
+            "names start with a letter, digit or '_' and hold letters, digits, '_', '.', '+' and '-'",
         )
     return None
 

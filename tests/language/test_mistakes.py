@@ -56,6 +56,7 @@ MISTAKES = [
     ("cell A1 a b emf=12V r=1Ohm = 3\n", E.SyntaxError, 1, 28, "expected a property", None),
     ("let m = 3\n", E.InputError, 1, 5, "'m' is a unit", None),
     ("let cell = 3\n", E.InputError, 1, 5, "keyword", None),
+    ("let r-int = 3mOhm\n", E.InputError, 1, 5, "letters, digits and '_' only", None),
     ("let x = 3V\nlet x = 4V\n", E.InputError, 2, 5, "already defined", None),
     (OK_CELL + "switch S a b state=shut\n", E.UnknownNameError, 2, 20, "'shut' is not a known state", "open, closed"),
     (OK_CELL + "load L a b r=1Ohm ± 5%\n", E.InputError, 2, 14, "tolerance", "let NAME"),
