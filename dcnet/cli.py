@@ -31,6 +31,7 @@ def _options(args):
         max_elements=args.max_elements,
         max_include_depth=args.max_include_depth,
         max_expression_depth=args.max_expression_depth,
+        max_block_depth=args.max_block_depth,
         allow_outside=args.allow_outside_includes,
     )
 
@@ -44,6 +45,7 @@ def _add_input_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--max-elements", type=int, default=d.max_elements, metavar="N", help=f"most elements in one circuit (default {d.max_elements:,})")
     g.add_argument("--max-include-depth", type=int, default=d.max_include_depth, metavar="N", help=f"deepest nesting of includes (default {d.max_include_depth})")
     g.add_argument("--max-expression-depth", type=int, default=d.max_expression_depth, metavar="N", help=f"deepest nesting of a value expression (default {d.max_expression_depth})")
+    g.add_argument("--max-block-depth", type=int, default=d.max_block_depth, metavar="N", help=f"deepest nesting of block instances (default {d.max_block_depth})")
     g.add_argument("--allow-outside-includes", action="store_true", help="follow includes that leave the circuit file's folder")
 
 
