@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
-__all__ = ["Verdict", "run", "RULES"]
+__all__ = ["Verdict", "run", "RULES", "elements_of"]
 
 
 @dataclass
@@ -54,6 +54,13 @@ class Verdict:
         if d["unlimited"]:
             d["value"] = None
         return d
+
+
+def elements_of(net, *kinds):
+    """The elements of the given kinds, in file order, without walking the whole netlist."""
+    _, _, by_kind = net.indices()
+    positions = sorted(p for k in kinds for p in by_kind.get(k, ()))
+    return [net.elements[p] for p in positions]
 
 
 def _rules():

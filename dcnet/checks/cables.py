@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from . import Verdict
+from . import Verdict, elements_of
 
 
 def check(net, sol) -> list[Verdict]:
@@ -11,9 +11,7 @@ def check(net, sol) -> list[Verdict]:
     except ImportError:  # pragma: no cover
         return []
     out: list[Verdict] = []
-    for el in net.elements:
-        if el.kind != "cable":
-            continue
+    for el in elements_of(net, "cable"):
         v = el.values
         area = v.get("area")
         if area is None:

@@ -8,7 +8,7 @@ then that many times the per-cell window. ``vmin``/``vmax``/``imax`` on the cell
 
 from __future__ import annotations
 
-from . import Verdict
+from . import Verdict, elements_of
 
 
 def _chemistry(name):
@@ -21,9 +21,7 @@ def _chemistry(name):
 
 def check(net, sol) -> list[Verdict]:
     out: list[Verdict] = []
-    for el in net.elements:
-        if el.kind != "cell":
-            continue
+    for el in elements_of(net, "cell"):
         v = el.values
         i = sol.current(el.name)
         vt = sol.voltage(el.name)

@@ -9,7 +9,7 @@ that, in percent. Defaults: 3 % for loads marked ``critical=yes``, 10 % for the 
 
 from __future__ import annotations
 
-from . import Verdict
+from . import Verdict, elements_of
 
 CRITICAL, OTHER = 0.03, 0.10
 SOURCE_DEFAULT = "ABYC E-11 (secondary): 3 % for critical loads, 10 % for others; common practice"
@@ -20,8 +20,8 @@ def source_voltage(net, sol) -> float:
     from ..kinds import KINDS
 
     nodes = set()
-    for el in net.elements:
-        if KINDS[el.kind].is_source and sol.power(el.name) < 0:
+    for el in elements_of(net, *(k for k, kind in KINDS.items() if kind.is_source)):
+        if sol.power(el.name) < 0:
             nodes.update(el.nodes)
     if not nodes:
         return 0.0
@@ -45,9 +45,7 @@ def check(net, sol) -> list[Verdict]:
         )
     if vs <= 0:
         return out
-    for el in net.elements:
-        if el.kind != "load":
-            continue
+    for el in elements_of(net, "load"):
         vl = abs(sol.voltage(el.name))
         pct = max(0.0, (vs - vl) / vs * 100)
         critical = el.values.get("critical", "no") == "yes"

@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import Verdict
+from . import Verdict, elements_of
 
 SOURCE_NO_RATING = "no interrupt rating given: figure for information"
 
@@ -66,11 +66,9 @@ def check(net, sol) -> list[Verdict]:
     from ..kinds import KINDS
 
     out: list[Verdict] = []
-    poles = sorted({n for el in net.elements if KINDS[el.kind].is_source for n in el.nodes})
+    poles = sorted({n for el in elements_of(net, *(k for k, kind in KINDS.items() if kind.is_source)) for n in el.nodes})
     pos_of = {n: k for k, n in enumerate(sol.branches.names)}
-    for el in net.elements:
-        if el.kind != "fuse":
-            continue
+    for el in elements_of(net, "fuse"):
         best = None
         for end in el.nodes:
             pole = _far_pole(sol, end, poles)

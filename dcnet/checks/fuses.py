@@ -6,7 +6,7 @@ sizing rule for continuous loads (NEC 210.20(A), from memory; common practice).
 
 from __future__ import annotations
 
-from . import Verdict
+from . import Verdict, elements_of
 
 CONTINUOUS_FACTOR = 0.8
 SOURCE = "80 % of rating for continuous current: the 125 % sizing rule for continuous loads (NEC 210.20(A), from memory; common practice)"
@@ -14,9 +14,7 @@ SOURCE = "80 % of rating for continuous current: the 125 % sizing rule for conti
 
 def check(net, sol) -> list[Verdict]:
     out: list[Verdict] = []
-    for el in net.elements:
-        if el.kind != "fuse":
-            continue
+    for el in elements_of(net, "fuse"):
         rating = el.values["rating"]
         i = abs(sol.current(el.name))
         limit = CONTINUOUS_FACTOR * rating

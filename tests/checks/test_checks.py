@@ -140,7 +140,7 @@ def test_limit_current_and_voltage_statements():
 
 @pytest.mark.parametrize(
     "demo, code",
-    [("cabin", 0), ("ebike-13s4p", 0), ("telecom-bank", 1), ("boat-house-bank", 1), ("cabin-rack-taps", 1)],
+    [("cabin", 0), ("ebike-13s4p", 0), ("ebike-segment", 0), ("telecom-shelter", 0), ("telecom-bank", 1), ("boat-house-bank", 1), ("cabin-rack-taps", 1)],
 )
 def test_check_command_on_demos(capsys, demo, code):
     assert main(["check", str(ROOT / "circuits" / f"{demo}.dcn")]) == code
