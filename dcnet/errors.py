@@ -24,6 +24,7 @@ __all__ = [
     "TopologyError",
     "NumericalError",
     "ConvergenceError",
+    "NoOperatingPointError",
     "DcnetWarning",
 ]
 
@@ -172,6 +173,10 @@ class NumericalError(DcnetError):
 
 class ConvergenceError(NumericalError):
     """An iterative (nonlinear) solve did not settle."""
+
+
+class NoOperatingPointError(NumericalError):
+    """A nonlinear circuit has no operating point (e.g. a constant-power demand above what the network can deliver)."""
 
 
 class DcnetWarning(UserWarning):

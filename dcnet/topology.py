@@ -110,7 +110,8 @@ def _dangling(bt: BranchTable) -> list[str]:
     """Elements on dead ends (a chain that leads nowhere): they carry no current."""
     # anything that can carry current counts, current sources included (they are no
     # connection for potentials, but a constant-current load at the end of a feeder is no dead end)
-    m = (bt.connecting | (bt.c != 0)) & (bt.a != bt.b)
+    nonlinear = bt.nonlinear if bt.nonlinear is not None else False
+    m = (bt.connecting | (bt.c != 0) | nonlinear) & (bt.a != bt.b)
     alive = m.copy()
     n = bt.n_nodes
     while True:

@@ -36,6 +36,12 @@ class BranchTable:
     shadow: np.ndarray | None = None
     #: for every branch, the position of its group's representative (itself if not grouped)
     representative: np.ndarray | None = None
+    #: branches solved by the Newton solver (their g, c, e here are only starting models)
+    nonlinear: np.ndarray | None = None
+
+    @property
+    def is_nonlinear(self) -> bool:
+        return self.nonlinear is not None and bool(self.nonlinear.any())
 
     @property
     def solved_voltage(self) -> np.ndarray:
@@ -80,16 +86,19 @@ def _build(net: Netlist) -> BranchTable:
     c = np.zeros(n)
     e = np.zeros(n)
     groups = {}
+    nonlinear = np.zeros(n, dtype=bool)
     max_emf = 0.0
     for kind_name, positions in by_kind.items():
         pos = np.asarray(positions, dtype=np.int64)
         cols = kind_columns(kind_name, [els[p] for p in positions])
-        br = KINDS[kind_name].branches(cols)
+        kind = KINDS[kind_name]
+        br = kind.branches(cols)
         is_v[pos], g[pos], c[pos], e[pos] = br.is_voltage, br.g, br.c, br.e
+        nonlinear[pos] = kind.nonlinear_mask(cols)
         groups[kind_name] = (pos, cols)
         if "emf" in cols and len(pos):
             max_emf = max(max_emf, float(np.nanmax(np.abs(cols["emf"]))))
-    shadow, rep = parallel_duplicates(a, b, is_v, e)
+    shadow, rep = parallel_duplicates(a, b, is_v & ~nonlinear, e)
     return BranchTable(
         names=[el.name for el in els],
         node_names=list(idx),
@@ -104,6 +113,7 @@ def _build(net: Netlist) -> BranchTable:
         max_emf=max_emf,
         shadow=shadow,
         representative=rep,
+        nonlinear=nonlinear,
     )
 
 

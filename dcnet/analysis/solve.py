@@ -12,6 +12,8 @@ residuals stay large after one round of iterative refinement is refused.
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 
 from ..errors import NumericalError, TopologyError
@@ -185,15 +187,29 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
             f"element conductances span {span:.0f} decades; results may lose precision "
             "(check for extreme resistances, e.g. a missing unit prefix)"
         )
+    newton = None
+    if bt.is_nonlinear:
+        from .newton import newton_solve
+
+        newton = newton_solve(bt)
+        model = newton.bt
+        system, factor, x = newton.system, newton.factor, newton.x
+        pot, v, i = newton.potentials, newton.v, newton.i
+        balance = verify(model, v, i, pot)
+        warnings += _second_operating_points(net, model, v)
+        warnings += _dropped_out(model, newton.modes)
+        sol = _finish(net, model, system, factor, x, pot, v, i, balance, warnings, refine=False)
+        sol.newton_history = newton.history
+        return sol
     system = assemble(bt)
     x, factor = solve_system(system)
-    if not np.all(np.isfinite(x)):
-        raise NumericalError(
-            "the solve gave a value that is not finite; the circuit matrix is singular or badly scaled",
-            hint="check for extreme resistances or a part of the circuit that is not connected as intended",
-        )
     pot, v, i = currents(bt, system, x)
     balance = verify(bt, v, i, pot)
+    return _finish(net, bt, system, factor, x, pot, v, i, balance, warnings, refine=True, span=span, estimate_condition=estimate_condition)
+
+
+def _finish(net, bt, system, factor, x, pot, v, i, balance, warnings, *, refine: bool, span: float = 0.0, estimate_condition: bool = False) -> Solution:
+    """Refinement, conditioning and the verdict on the self-check; builds the Solution."""
     if system.dense or span > SPAN_WARN_DECADES or not balance["ok"] or estimate_condition:
         cond = condition_estimate(system, factor)
         balance["condition_estimate"] = cond
@@ -209,7 +225,7 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
                 f"the circuit matrix is ill-conditioned (condition number about {cond:.1g}): "
                 f"up to {-np.log10(bound):.0f} significant digits can be trusted in the worst case"
             )
-    if not balance["ok"]:
+    if not balance["ok"] and refine:
         # one round of iterative refinement on the assembled system
         r = system.z - system.A @ x
         x = x + factor.solve(r)
@@ -230,3 +246,58 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
     sol = Solution(net, bt, pot, v, i, balance, warnings)
     sol.system, sol.factor = system, factor
     return sol
+
+
+def _dropped_out(model: BranchTable, modes: dict) -> list[str]:
+    from ..kinds.load import DROPPED
+
+    if "load" not in modes or "load" not in model.groups:
+        return []
+    pos, cols = model.groups["load"]
+    cp = np.flatnonzero(~np.isnan(cols["power"]))
+    out = []
+    for k, mode in zip(cp, modes["load"]):
+        if mode == DROPPED:
+            out.append(
+                f"load {model.names[pos[k]]} dropped out: it cannot draw {cols['power'][k]:.4g} W without its voltage "
+                f"falling below vmin = {cols['vmin'][k]:.4g} V"
+            )
+    return out
+
+
+def _second_operating_points(net, model: BranchTable, v: np.ndarray) -> list[str]:
+    """Constant-power loads have two operating points on a Thevenin source; say where the other is."""
+    if "load" not in model.groups:
+        return []
+    pos, cols = model.groups["load"]
+    out = []
+    for k in np.flatnonzero(~np.isnan(cols["power"])):
+        p = pos[k]
+        if model.g[p] == 0 and model.c[p] == 0:
+            continue  # dropped out
+        g, c = model.g.copy(), model.c.copy()
+        g[p] = c[p] = 0.0
+        alone = dataclasses.replace(model, g=g, c=c)
+        system = assemble(alone)
+        try:
+            x, factor = solve_system(system)
+        except NumericalError:
+            continue
+        pot, _, _ = currents(alone, system, x, g, c)
+        a, b = model.a[p], model.b[p]
+        rhs = np.zeros(system.size)
+        if system.row_of_node[a] >= 0:
+            rhs[system.row_of_node[a]] += 1.0
+        if system.row_of_node[b] >= 0:
+            rhs[system.row_of_node[b]] -= 1.0
+        w = system.potentials(factor.solve(rhs))
+        v_th, r_th = pot[a] - pot[b], w[a] - w[b]
+        if r_th <= 0 or v_th <= 0:
+            continue
+        low = v_th - v[p]  # the two roots of v^2 - V_th v + P R_th = 0 add up to V_th
+        if 0 < low < v[p]:
+            out.append(
+                f"load {model.names[p]} has a second, unstable operating point at about {low:.4g} V (the same power "
+                f"at {cols['power'][k] / low:.4g} A); the stable one at {v[p]:.4g} V is reported"
+            )
+    return out

@@ -13,7 +13,7 @@ from .base import Branches, Kind, Prop
 
 __all__ = ["KINDS", "Kind", "Prop", "Branches", "get"]
 
-_MODULES = ("resistor", "cell", "source", "supply", "cable", "fuse", "switch", "link", "load")
+_MODULES = ("resistor", "cell", "source", "supply", "cable", "fuse", "switch", "link", "load", "diode")
 
 KINDS: dict[str, Kind] = {}
 for _m in _MODULES:

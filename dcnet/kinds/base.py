@@ -107,6 +107,34 @@ class Kind:
     def branches(self, cols: dict[str, np.ndarray]) -> Branches:
         raise NotImplementedError
 
+    # ------------------------------------------------------- nonlinear kinds
+    # A kind whose elements (some or all) are nonlinear answers these; the Newton solver
+    # (analysis/newton.py) calls them on the nonlinear elements only, as arrays.
+
+    def nonlinear_mask(self, cols: dict[str, np.ndarray]) -> np.ndarray:
+        """Which elements of this kind need the nonlinear solver (default: none)."""
+        n = len(next(iter(cols.values()))) if cols else 0
+        return np.full(n, self.nonlinear, dtype=bool)
+
+    def initial_mode(self, cols: dict[str, np.ndarray]) -> np.ndarray:
+        """Operating mode of each nonlinear element before the first iteration (integer codes)."""
+        n = len(next(iter(cols.values()))) if cols else 0
+        return np.zeros(n, dtype=np.int64)
+
+    def companion(self, cols, v: np.ndarray, i: np.ndarray, mode: np.ndarray, prev: np.ndarray):
+        """Linear model at the operating point: returns (Branches, new mode, voltage used).
+
+        ``v``/``i`` are the latest iterate's branch voltage and current, ``prev`` the
+        voltage the previous model was built at; a kind may limit the step (junctions) and
+        switch modes (piecewise-linear kinds). The returned voltage is what it linearised at.
+        """
+        raise NotImplementedError
+
+    def exact_current(self, cols, v: np.ndarray, i: np.ndarray, mode: np.ndarray) -> np.ndarray:
+        """The element law evaluated at voltage ``v`` (``i`` is the solved current, used by
+        voltage-form modes whose current is an unknown of the system)."""
+        raise NotImplementedError
+
     def extras(self, cols: dict[str, np.ndarray], v: np.ndarray, i: np.ndarray, ctx: dict) -> dict[str, np.ndarray]:
         """Kind-specific results beside current, voltage and power."""
         return {}

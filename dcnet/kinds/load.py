@@ -1,7 +1,10 @@
-"""``load``: a resistive (``r``) or constant-current (``current``) consumer.
+"""``load``: a resistive (``r``), constant-current (``current``) or constant-power (``power``) consumer.
 
-Constant-power loads (``power``) are nonlinear and are solved by the Newton
-solver; the linear path refuses them with a clear message until it exists.
+Constant-power loads (inverters, DC-DC converters) draw ``i = P / v`` and are solved by
+the Newton solver. With ``vmin`` such a load drops out (draws nothing) when its voltage
+would fall below ``vmin``, as real inverters do at undervoltage; once dropped it stays
+dropped for that solve. Without ``vmin`` a demand the network cannot meet is an error that
+gives the figures.
 """
 
 from __future__ import annotations
@@ -11,6 +14,8 @@ import numpy as np
 from ..errors import InputError
 from ..units import CURRENT, POWER, RESISTANCE, VOLTAGE
 from .base import Kind, Prop, admittance, positive
+
+ON, DROPPED = 0, 1
 
 
 class Load(Kind):
@@ -22,31 +27,51 @@ class Load(Kind):
                 f"a load needs exactly one of r, current, power (found: {found})",
                 hint="for example: load HEAT feed gnd r=1.6Ohm",
             )
-        if "power" in values:
-            raise InputError(
-                "constant-power loads (power=) are not supported yet",
-                hint="model the load as r= (its resistance at the working voltage) or current=",
-            )
         return values
 
     def branches(self, cols):
-        r, cur = cols["r"], cols["current"]
+        r, cur, power = cols["r"], cols["current"], cols["power"]
         resistive = ~np.isnan(r)
         g = np.zeros(len(r))
         np.divide(1.0, r, out=g, where=resistive)
-        return admittance(g, np.where(resistive, 0.0, cur))
+        # constant-power loads start switched off; the Newton solver linearises them
+        return admittance(g, np.where(resistive | ~np.isnan(power), 0.0, cur))
+
+    def nonlinear_mask(self, cols):
+        return ~np.isnan(cols["power"])
+
+    def companion(self, cols, v, i, mode, prev):
+        P, vmin = cols["power"], cols["vmin"]
+        mode = mode.copy()
+        drop = (mode == ON) & ~np.isnan(vmin) & (v < vmin)
+        mode[drop] = DROPPED
+        # never linearise at or below zero volts: a constant-power load has no such operating point
+        floor = np.maximum(np.abs(prev), 1e-6) * 0.5
+        v0 = np.where(v > floor, v, floor)
+        g = np.where(mode == ON, -P / v0**2, 0.0)
+        c = np.where(mode == ON, 2 * P / v0, 0.0)
+        return admittance(g, c), mode, v0
+
+    def exact_current(self, cols, v, i, mode):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.where(mode == ON, cols["power"] / v, 0.0)
+
+    def state(self, cols, v, i):
+        words = super().state(cols, v, i)
+        dropped = ~np.isnan(cols["power"]) & (i == 0)
+        return np.where(dropped, "dropped out", words)
 
 
 KIND = Load(
     name="load",
-    doc="consumer: resistive (r) or constant-current (current)",
+    doc="consumer: resistive (r), constant-current (current) or constant-power (power)",
     props={
         "r": Prop("r", RESISTANCE, check=positive, doc="resistance"),
         "current": Prop("current", CURRENT, doc="constant current drawn (first node to second)"),
         "power": Prop("power", POWER, check=positive, doc="constant power drawn"),
-        "vmin": Prop("vmin", VOLTAGE, doc="lowest working voltage"),
+        "vmin": Prop("vmin", VOLTAGE, doc="lowest working voltage (a constant-power load drops out below it)"),
         "critical": Prop("critical", form="word", words=("yes", "no"), default="no", doc="a critical load (3 % drop limit instead of 10 %)"),
     },
-    columns=("r", "current", "vmin"),
+    columns=("r", "current", "power", "vmin"),
     busy_word="drawing",
 )

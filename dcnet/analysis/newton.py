@@ -1,0 +1,288 @@
+"""Damped Newton iterations on the MNA system, for circuits with nonlinear elements.
+
+Each iteration asks every nonlinear kind for its linear model at the latest operating
+point (its *companion*: a conductance and a current, or a voltage-form branch), assembles
+the same MNA system as the linear path, solves it, and takes a step towards the answer,
+halving the step while the Kirchhoff residual (evaluated with the elements' exact laws)
+does not fall. Piecewise-linear kinds (ideal diodes, current-limited sources, loads that
+drop out) switch modes between iterations.
+
+When plain Newton does not settle, two fallbacks follow: source stepping (every source
+scaled from a tenth up to its full value, each answer starting the next) and then a
+conductance ramp (a shunt from every node to ground, reduced decade by decade to zero).
+Failure to converge is an error naming the elements that did not settle, with the
+iteration history; constant-power demands beyond what the network can deliver are
+reported with their figures instead.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+
+from ..errors import ConvergenceError, NoOperatingPointError
+from ..kinds import KINDS
+from .branches import BranchTable
+from .mna import assemble, solve_system
+
+__all__ = ["NewtonResult", "newton_solve", "VTOL", "ITOL", "MAX_ITER"]
+
+VTOL = 1e-9  # volts, plus the same relative to the largest potential
+ITOL = 1e-9  # relative to the current scale
+MAX_ITER = 60
+
+
+@dataclasses.dataclass
+class NewtonResult:
+    bt: BranchTable  # the branch table with the converged linear models of the nonlinear elements
+    system: object
+    factor: object
+    x: np.ndarray
+    potentials: np.ndarray
+    v: np.ndarray
+    i: np.ndarray
+    modes: dict[str, np.ndarray]
+    history: list[dict]
+
+
+class _Group:
+    """The nonlinear elements of one kind."""
+
+    def __init__(self, kind_name: str, pos: np.ndarray, cols: dict[str, np.ndarray]):
+        self.kind = KINDS[kind_name]
+        self.name = kind_name
+        self.pos = pos
+        self.cols = cols
+        self.mode = self.kind.initial_mode(cols)
+        self.prev = np.zeros(len(pos))
+
+
+def _groups(bt: BranchTable) -> list[_Group]:
+    out = []
+    for kind_name, (pos, cols) in bt.groups.items():
+        mask = bt.nonlinear[pos]
+        if mask.any():
+            out.append(_Group(kind_name, pos[mask], {k: col[mask] for k, col in cols.items()}))
+    return out
+
+
+def _model(bt: BranchTable, groups: list[_Group], v: np.ndarray, i: np.ndarray, scale: float = 1.0) -> BranchTable:
+    """The branch table with every nonlinear element replaced by its companion at (v, i)."""
+    is_v, g, c, e = bt.is_voltage.copy(), bt.g.copy(), bt.c.copy(), bt.e.copy()
+    if scale != 1.0:  # source stepping: every independent source scaled
+        lin = ~bt.nonlinear
+        c[lin] *= scale
+        e[lin] *= scale
+    for grp in groups:
+        cols = grp.cols
+        if scale != 1.0:
+            cols = _scaled(grp, scale)
+        br, grp.mode, grp.prev = grp.kind.companion(cols, v[grp.pos], i[grp.pos], grp.mode, grp.prev)
+        is_v[grp.pos], g[grp.pos], c[grp.pos], e[grp.pos] = br.is_voltage, br.g, br.c, br.e
+    return dataclasses.replace(bt, is_voltage=is_v, g=g, c=c, e=e)
+
+
+def _scaled(grp: _Group, s: float) -> dict[str, np.ndarray]:
+    cols = dict(grp.cols)
+    for key, power in (("emf", 1), ("imax", 1), ("power", 2)):
+        if key in cols:
+            cols[key] = cols[key] * s**power
+    return cols
+
+
+def _exact(bt: BranchTable, model: BranchTable, groups: list[_Group], v: np.ndarray, i_model: np.ndarray) -> np.ndarray:
+    """Element currents with the nonlinear elements' exact laws at voltages v."""
+    i = i_model.copy()
+    for grp in groups:
+        i[grp.pos] = grp.kind.exact_current(grp.cols, v[grp.pos], i_model[grp.pos], grp.mode)
+    return i
+
+
+def _residual(bt: BranchTable, model: BranchTable, v, i) -> float:
+    n = bt.n_nodes
+    leaving = np.bincount(bt.a, weights=i, minlength=n) - np.bincount(bt.b, weights=i, minlength=n)
+    leaving[bt.ground] = 0.0
+    res = float(np.abs(leaving).max(initial=0.0))
+    if model.is_voltage.any():
+        res = max(res, float(np.abs(v[model.is_voltage] - model.e[model.is_voltage]).max()) * float(np.abs(model.g).max(initial=1.0)))
+    return res
+
+
+def _start_model(bt: BranchTable, scale: float) -> BranchTable:
+    """The linear starting model (nonlinear elements as their kinds' ``branches`` give them:
+    constant-power loads off, diodes blocked, limited sources holding), sources scaled."""
+    if scale == 1.0:
+        return bt
+    c, e = bt.c.copy(), bt.e.copy()
+    c *= scale
+    e *= scale
+    return dataclasses.replace(bt, c=c, e=e)
+
+
+def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_ITER):
+    """Newton at one source scale from ``start`` = (pot, v, i) or None; returns (converged, state)."""
+    from .solve import currents
+
+    if start is None:
+        model = _start_model(bt, scale)
+        system = _assemble(model, shunt)
+        x, factor = solve_system(system)
+        pot, v, i = currents(model, system, x, model.g, model.c)
+    else:
+        pot, v, i = start
+    state = None
+    for it in range(1, max_iter + 1):
+        modes_before = [grp.mode.copy() for grp in groups]
+        model = _model(bt, groups, v, i, scale)
+        changed = int(sum(int((m0 != grp.mode).sum()) for m0, grp in zip(modes_before, groups)))
+        system = _assemble(model, shunt)
+        x_new, factor = solve_system(system)
+        if not np.all(np.isfinite(x_new)):
+            history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": changed})
+            return False, state
+        pot_new, _, i_model = currents(model, system, x_new, model.g, model.c)
+        res_old = _residual(bt, model, v, _exact(bt, model, groups, v, np.where(model.is_voltage, i_model, model.g * v + model.c)))
+        alpha = 1.0
+        while True:
+            pot_try = pot + alpha * (pot_new - pot)
+            v_try = pot_try[bt.a] - pot_try[bt.b]
+            i_try = _exact(bt, model, groups, v_try, np.where(model.is_voltage, i_model, model.g * v_try + model.c))
+            res = _residual(bt, model, v_try, i_try)
+            if res <= res_old or alpha <= 1 / 64 or changed:
+                break
+            alpha /= 2
+        step = float(np.abs(pot_try - pot).max(initial=0.0))
+        history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": step, "residual_A": res, "alpha": alpha, "modes_changed": changed})
+        pot, v, i = pot_try, v_try, i_try
+        state = (model, system, factor, x_new, pot, v, i)
+        vscale = max(float(np.abs(pot).max(initial=0.0)), 1.0)
+        iscale = max(float(np.abs(i).max(initial=0.0)), 1e-12)
+        if changed == 0 and alpha == 1.0 and step <= VTOL * vscale and res <= ITOL * iscale + 1e-12:
+            return True, state
+    return False, state
+
+
+def _assemble(model: BranchTable, shunt: float):
+    system = assemble(model)
+    if shunt:
+        N = system.n_node_rows
+        if system.dense:
+            system.A[np.arange(N), np.arange(N)] += shunt
+        else:
+            from scipy.sparse import diags
+
+            d = np.zeros(system.size)
+            d[:N] = shunt
+            system.A = (system.A + diags(d)).tocsc()
+    return system
+
+
+def newton_solve(bt: BranchTable) -> NewtonResult:
+    """Solve a branch table with nonlinear elements; raise with figures when it cannot."""
+    history: list[dict] = []
+    _check_power_demands(bt)
+    gscale = float(np.abs(bt.g).max(initial=1.0))
+    plans = [
+        ("newton", [(1.0, 0.0)]),
+        ("source stepping", [(0.1 * k, 0.0) for k in range(1, 11)]),
+        ("conductance ramp", [(1.0, gscale * 10.0**-k) for k in range(0, 13)] + [(1.0, 0.0)]),
+    ]
+    groups: list[_Group] = []
+    state = None
+    for phase, steps in plans:
+        groups = _groups(bt)
+        start = None
+        ok = False
+        for scale, shunt in steps:
+            ok, state = _iterate(bt, groups, start, scale, history, phase, shunt=shunt)
+            if not ok:
+                break
+            start = state[4:7]
+        if ok:
+            model, system, factor, x, pot, v, i = state
+            return NewtonResult(model, system, factor, x, pot, v, i, {g.name: g.mode for g in groups}, history)
+    _raise_unsettled(bt, groups, state, history)
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
+def _raise_unsettled(bt, groups, state, history):
+    _check_power_demands(bt, frozen=state)
+    names = []
+    if state is not None:
+        model, _, _, _, pot, v, i = state
+        if pot is not None:
+            for grp in groups:
+                exact = grp.kind.exact_current(grp.cols, v[grp.pos], i[grp.pos], grp.mode)
+                off = np.abs(exact - i[grp.pos])
+                order = np.argsort(-off)
+                names += [bt.names[grp.pos[k]] for k in order[:5]]
+    if not names:
+        names = [bt.names[p] for p in np.flatnonzero(bt.nonlinear)[:5]]
+    last = history[-3:]
+    summary = "; ".join(f"{h['phase']} #{h['iteration']}: step {h.get('step_V', float('nan')):.3g} V, residual {h['residual_A']:.3g} A" for h in last)
+    err = ConvergenceError(
+        f"the nonlinear solve did not settle after {len(history)} iterations (Newton, source stepping, conductance ramp); "
+        f"elements that did not settle: {', '.join(names)}",
+        culprits=tuple(names),
+        element=names[0] if names else None,
+        hint=f"last iterations: {summary}" if summary else None,
+    )
+    err.history = history
+    raise err
+
+
+def _check_power_demands(bt: BranchTable, frozen=None) -> None:
+    """Refuse constant-power demands beyond what the network can deliver, with the figures.
+
+    For each constant-power load alone (other constant-power loads off, other nonlinear
+    elements at their starting models, or at ``frozen``'s last models after a failed solve),
+    the network seen from its terminals is a Thevenin source V_th behind R_th, which can
+    deliver at most V_th^2 / (4 R_th).
+    """
+    if "load" not in bt.groups:
+        return
+    pos, cols = bt.groups["load"]
+    cp = np.flatnonzero(~np.isnan(cols["power"]))
+    if len(cp) == 0:
+        return
+    base = frozen[0] if frozen is not None and frozen[0] is not None else bt
+    g, c = base.g.copy(), base.c.copy()
+    cp_pos = pos[cp]
+    g[cp_pos] = 0.0
+    c[cp_pos] = 0.0
+    # other nonlinear elements at their starting linear models unless frozen
+    model = dataclasses.replace(base, g=g, c=c)
+    system = assemble(model)
+    try:
+        x, factor = solve_system(system)
+    except Exception:  # a singular open-circuit network: leave the diagnosis to the solver
+        return
+    from .solve import currents
+
+    pot, _, _ = currents(model, system, x, g, c)
+    for k, p in zip(cp, cp_pos):
+        demand = cols["power"][k]
+        a, b = bt.a[p], bt.b[p]
+        rhs = np.zeros(system.size)
+        ra, rb = system.row_of_node[a], system.row_of_node[b]
+        if ra >= 0:
+            rhs[ra] += 1.0
+        if rb >= 0:
+            rhs[rb] -= 1.0
+        w = system.potentials(factor.solve(rhs))
+        r_th = w[a] - w[b]
+        v_th = pot[a] - pot[b]
+        if r_th <= 0:
+            continue
+        p_max = v_th * v_th / (4 * r_th) if v_th > 0 else 0.0
+        has_vmin = not np.isnan(cols["vmin"][k])
+        if demand > p_max and not has_vmin:
+            name = bt.names[p]
+            raise NoOperatingPointError(
+                f"load {name} asks for {demand:.4g} W, but the network can deliver at most {p_max:.4g} W at its "
+                f"terminals (V_th^2 / 4 R_th with V_th = {v_th:.4g} V, R_th = {r_th:.4g} Ohm): no operating point exists",
+                element=name,
+                culprits=(name,),
+                hint="lower the demand, strengthen the supply (lower resistance, higher EMF), or give the load vmin= so it drops out as a real inverter would",
+            )
