@@ -21,7 +21,7 @@ import dataclasses
 
 import numpy as np
 
-from ..errors import ConvergenceError, NoOperatingPointError
+from ..errors import ConvergenceError, NoOperatingPointError, NumericalError
 from ..kinds import KINDS
 from .branches import BranchTable
 from .mna import assemble, solve_system
@@ -58,12 +58,17 @@ class _Group:
         self.prev = np.zeros(len(pos))
 
 
-def _groups(bt: BranchTable) -> list[_Group]:
+def _groups(bt: BranchTable, dropped: set[int] = frozenset()) -> list[_Group]:
     out = []
     for kind_name, (pos, cols) in bt.groups.items():
         mask = bt.nonlinear[pos]
         if mask.any():
-            out.append(_Group(kind_name, pos[mask], {k: col[mask] for k, col in cols.items()}))
+            grp = _Group(kind_name, pos[mask], {k: col[mask] for k, col in cols.items()})
+            if kind_name == "load" and dropped:
+                from ..kinds.load import DROPPED
+
+                grp.mode[np.isin(grp.pos, list(dropped))] = DROPPED
+            out.append(grp)
     return out
 
 
@@ -127,7 +132,10 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
     if start is None:
         model = _start_model(bt, scale)
         system = _assemble(model, shunt)
-        x, factor = solve_system(system)
+        try:
+            x, factor = solve_system(system)
+        except NumericalError:
+            return False, None
         pot, v, i = currents(model, system, x, model.g, model.c)
     else:
         pot, v, i = start
@@ -137,19 +145,24 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
         model = _model(bt, groups, v, i, scale)
         changed = int(sum(int((m0 != grp.mode).sum()) for m0, grp in zip(modes_before, groups)))
         system = _assemble(model, shunt)
-        x_new, factor = solve_system(system)
+        try:
+            x_new, factor = solve_system(system)
+        except NumericalError:
+            x_new = np.full(system.size, np.nan)
         if not np.all(np.isfinite(x_new)):
             history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": changed})
             return False, state
         pot_new, _, i_model = currents(model, system, x_new, model.g, model.c)
         res_old = _residual(bt, model, v, _exact(bt, model, groups, v, np.where(model.is_voltage, i_model, model.g * v + model.c)))
         alpha = 1.0
+        iscale = max(float(np.abs(i_model).max(initial=0.0)), 1e-12)
+        good_enough = ITOL * iscale + 1e-12
         while True:
             pot_try = pot + alpha * (pot_new - pot)
             v_try = pot_try[bt.a] - pot_try[bt.b]
             i_try = _exact(bt, model, groups, v_try, np.where(model.is_voltage, i_model, model.g * v_try + model.c))
             res = _residual(bt, model, v_try, i_try)
-            if res <= res_old or alpha <= 1 / 64 or changed:
+            if res <= max(res_old, good_enough) or alpha <= 1 / 64 or changed:
                 break
             alpha /= 2
         step = float(np.abs(pot_try - pot).max(initial=0.0))
@@ -157,8 +170,7 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
         pot, v, i = pot_try, v_try, i_try
         state = (model, system, factor, x_new, pot, v, i)
         vscale = max(float(np.abs(pot).max(initial=0.0)), 1.0)
-        iscale = max(float(np.abs(i).max(initial=0.0)), 1e-12)
-        if changed == 0 and alpha == 1.0 and step <= VTOL * vscale and res <= ITOL * iscale + 1e-12:
+        if changed == 0 and step <= VTOL * vscale and res <= good_enough:
             return True, state
     return False, state
 
@@ -179,35 +191,66 @@ def _assemble(model: BranchTable, shunt: float):
 
 
 def newton_solve(bt: BranchTable) -> NewtonResult:
-    """Solve a branch table with nonlinear elements; raise with figures when it cannot."""
+    """Solve a branch table with nonlinear elements; raise with figures when it cannot.
+
+    If no phase settles and some constant-power loads with ``vmin`` ask for more than the
+    network can deliver at the last iterate, those loads drop out (as an inverter does at
+    undervoltage) and the solve starts again.
+    """
     history: list[dict] = []
-    _check_power_demands(bt)
+    only_power = all(kind == "load" for kind, (pos, _) in bt.groups.items() if bt.nonlinear[pos].any())
+    if only_power:  # with no other nonlinear element the Thevenin figures are exact up front
+        _check_power_demands(bt)
     gscale = float(np.abs(bt.g).max(initial=1.0))
     plans = [
         ("newton", [(1.0, 0.0)]),
         ("source stepping", [(0.1 * k, 0.0) for k in range(1, 11)]),
         ("conductance ramp", [(1.0, gscale * 10.0**-k) for k in range(0, 13)] + [(1.0, 0.0)]),
     ]
-    groups: list[_Group] = []
-    state = None
-    for phase, steps in plans:
-        groups = _groups(bt)
-        start = None
-        ok = False
-        for scale, shunt in steps:
-            ok, state = _iterate(bt, groups, start, scale, history, phase, shunt=shunt)
-            if not ok:
-                break
-            start = state[4:7]
-        if ok:
-            model, system, factor, x, pot, v, i = state
-            return NewtonResult(model, system, factor, x, pot, v, i, {g.name: g.mode for g in groups}, history)
-    _raise_unsettled(bt, groups, state, history)
-    raise AssertionError("unreachable")  # pragma: no cover
+    dropped: set[int] = set()
+    while True:
+        groups: list[_Group] = []
+        state = None
+        for phase, steps in plans:
+            groups = _groups(bt, dropped)
+            start = None
+            ok = False
+            for scale, shunt in steps:
+                ok, state = _iterate(bt, groups, start, scale, history, phase, shunt=shunt)
+                if not ok:
+                    break
+                start = state[4:7]
+            if ok:
+                model, system, factor, x, pot, v, i = state
+                return NewtonResult(model, system, factor, x, pot, v, i, {g.name: g.mode for g in groups}, history)
+        more = _check_power_demands(bt, frozen=state, dropped=dropped) or _weakest_load(bt, groups, state, dropped)
+        if not more:
+            _raise_unsettled(bt, groups, state, history)
+        dropped |= more
+        history.append({"phase": "dropout", "iteration": 0, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": len(more)})
+
+
+def _weakest_load(bt: BranchTable, groups: list[_Group], state, dropped: set[int]) -> set[int]:
+    """The running constant-power load with ``vmin`` whose last voltage is lowest relative to
+    its ``vmin``: the first to cut out when nothing settles."""
+    if state is None or state[5] is None:
+        return set()
+    v = state[5]
+    best = None
+    for grp in groups:
+        if grp.name != "load":
+            continue
+        vmin = grp.cols["vmin"]
+        for k, p in enumerate(grp.pos):
+            if int(p) in dropped or np.isnan(vmin[k]) or vmin[k] <= 0:
+                continue
+            ratio = v[p] / vmin[k]
+            if best is None or ratio < best[0]:
+                best = (ratio, int(p))
+    return {best[1]} if best else set()
 
 
 def _raise_unsettled(bt, groups, state, history):
-    _check_power_demands(bt, frozen=state)
     names = []
     if state is not None:
         model, _, _, _, pot, v, i = state
@@ -232,7 +275,7 @@ def _raise_unsettled(bt, groups, state, history):
     raise err
 
 
-def _check_power_demands(bt: BranchTable, frozen=None) -> None:
+def _check_power_demands(bt: BranchTable, frozen=None, dropped: set[int] = frozenset()) -> set[int]:
     """Refuse constant-power demands beyond what the network can deliver, with the figures.
 
     For each constant-power load alone (other constant-power loads off, other nonlinear
@@ -241,11 +284,11 @@ def _check_power_demands(bt: BranchTable, frozen=None) -> None:
     deliver at most V_th^2 / (4 R_th).
     """
     if "load" not in bt.groups:
-        return
+        return set()
     pos, cols = bt.groups["load"]
     cp = np.flatnonzero(~np.isnan(cols["power"]))
     if len(cp) == 0:
-        return
+        return set()
     base = frozen[0] if frozen is not None and frozen[0] is not None else bt
     g, c = base.g.copy(), base.c.copy()
     cp_pos = pos[cp]
@@ -256,12 +299,15 @@ def _check_power_demands(bt: BranchTable, frozen=None) -> None:
     system = assemble(model)
     try:
         x, factor = solve_system(system)
-    except Exception:  # a singular open-circuit network: leave the diagnosis to the solver
-        return
+    except NumericalError:  # a singular open-circuit network: leave the diagnosis to the solver
+        return set()
     from .solve import currents
 
     pot, _, _ = currents(model, system, x, g, c)
+    to_drop: set[int] = set()
     for k, p in zip(cp, cp_pos):
+        if int(p) in dropped:
+            continue
         demand = cols["power"][k]
         a, b = bt.a[p], bt.b[p]
         rhs = np.zeros(system.size)
@@ -277,6 +323,8 @@ def _check_power_demands(bt: BranchTable, frozen=None) -> None:
             continue
         p_max = v_th * v_th / (4 * r_th) if v_th > 0 else 0.0
         has_vmin = not np.isnan(cols["vmin"][k])
+        if demand > p_max and has_vmin:
+            to_drop.add(int(p))
         if demand > p_max and not has_vmin:
             name = bt.names[p]
             raise NoOperatingPointError(
@@ -286,3 +334,4 @@ def _check_power_demands(bt: BranchTable, frozen=None) -> None:
                 culprits=(name,),
                 hint="lower the demand, strengthen the supply (lower resistance, higher EMF), or give the load vmin= so it drops out as a real inverter would",
             )
+    return to_drop

@@ -98,7 +98,8 @@ def verify(bt: BranchTable, v: np.ndarray, i: np.ndarray, potentials: np.ndarray
 
 def value_span(bt: BranchTable) -> float:
     """Decades between the largest and smallest non-zero conductance."""
-    g = np.abs(bt.g[~bt.is_voltage])
+    linear = ~bt.is_voltage if bt.nonlinear is None else ~bt.is_voltage & ~bt.nonlinear
+    g = np.abs(bt.g[linear])
     g = g[g > 0]
     if len(g) < 2:
         return 0.0

@@ -1,0 +1,154 @@
+"""Nonlinear elements: closed forms, the charger's crossover by the loop rule, diodes, and
+random networks that must converge and satisfy Kirchhoff's laws."""
+
+import math
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+import dcnet
+from dcnet import errors as E
+
+
+def solve(text):
+    return dcnet.parse(text + "ground gnd\n").solve()
+
+
+@pytest.mark.parametrize("E0, R, P", [(12.0, 0.1, 200.0), (48.0, 0.05, 5000.0), (25.4, 0.012, 900.0), (12.0, 0.1, 359.0)])
+def test_constant_power_load_matches_the_closed_form(E0, R, P):
+    # P = V (E - V) / R  =>  V = (E + sqrt(E^2 - 4 P R)) / 2, the stable (high-voltage) root
+    sol = solve(f"source S a gnd emf={E0}V r={R}Ohm\nload L a gnd power={P}W\n")
+    V = (E0 + math.sqrt(E0 * E0 - 4 * P * R)) / 2
+    assert sol.voltage("L") == pytest.approx(V, rel=1e-9)
+    assert sol.power("L") == pytest.approx(P, rel=1e-9)
+    low = (E0 - math.sqrt(E0 * E0 - 4 * P * R)) / 2
+    assert any(f"{low:.4g} V" in w for w in sol.warnings)  # the other operating point is named
+    assert sol.balance["ok"]
+
+
+def test_no_operating_point_reports_the_limit():
+    # maximum power transfer: at most E^2 / 4R = 144 / 0.4 = 360 W
+    with pytest.raises(E.NoOperatingPointError) as info:
+        solve("source S a gnd emf=12V r=0.1Ohm\nload L a gnd power=400W\n")
+    assert "400 W" in info.value.message and "360 W" in info.value.message
+    assert info.value.culprits == ("L",)
+
+
+def test_undervoltage_dropout():
+    sol = solve("source S a gnd emf=12V r=0.1Ohm\nload L a gnd power=400W vmin=10.5V\nload LED a gnd r=10Ohm\n")
+    assert sol.state("L") == "dropped out" and sol.current("L") == 0
+    assert sol.current("LED") == pytest.approx(12 / 10.1)
+    assert any("dropped out" in w for w in sol.warnings)
+    # a load that can run above its vmin keeps running
+    sol = solve("source S a gnd emf=12V r=0.1Ohm\nload L a gnd power=100W vmin=10.5V\n")
+    assert sol.state("L") == "drawing"
+
+
+@pytest.mark.parametrize("r_charger", [0.0, 0.01])
+def test_charger_crossover_follows_the_loop_rule(r_charger):
+    # loop rule: holding its EMF E_ch behind r_ch, the charger drives (E_ch - E_b)/(r_ch + r_b)
+    # into the cell; that exceeds imax when E_b < E_ch - imax (r_ch + r_b): the crossover EMF
+    E_ch, imax, r_b = 14.4, 20.0, 0.02
+    rpart = f" r={r_charger}Ohm" if r_charger else ""
+    crossover = E_ch - imax * (r_charger + r_b)
+    for emf, limited in ((crossover - 1e-3, True), (crossover + 1e-3, False)):
+        sol = solve(f"source CH p gnd emf={E_ch}V{rpart} imax={imax}A\ncell B p gnd emf={emf}V r={r_b}Ohm\n")
+        if limited:
+            assert sol.state("CH") == "current-limited"
+            assert sol.current("B") == pytest.approx(imax, rel=1e-12)
+            assert sol.voltage("B") == pytest.approx(emf + imax * r_b, rel=1e-12)
+        else:
+            assert sol.state("CH") == "delivering"
+            assert sol.current("B") == pytest.approx((E_ch - emf) / (r_charger + r_b), rel=1e-9)
+            assert sol.current("B") < imax
+
+
+def test_diode_isolator_blocks_with_its_reverse_voltage():
+    text = (
+        "source CH bus gnd emf=14.0V r=10mOhm imax=40A\n"
+        "diode DH bus house drop=0.45V r=4mOhm\n"
+        "diode DS bus start drop=0.45V r=4mOhm\n"
+        "cell HOUSE house gnd emf=12.3V r=8mOhm\n"
+        "cell START start gnd emf=13.3V r=15mOhm\n"
+        "source SOLAR start gnd emf=14.6V r=0.1Ohm imax=8A\n"
+    )
+    sol = solve(text)
+    assert sol.state("DH") == "conducting" and sol.state("DS") == "blocked"
+    assert sol.extras("DS")["reverse_V"] == pytest.approx(sol.potential("start") - sol.potential("bus"), rel=1e-9)
+    assert sol.extras("DS")["reverse_V"] > 0
+    assert abs(sol.current("DS")) < 1e-9
+    # the conducting diode obeys its law exactly
+    assert sol.current("DH") == pytest.approx((sol.voltage("DH") - 0.45) / 0.004, rel=1e-9)
+
+
+def test_ideal_diodes_pick_the_higher_bank():
+    sol = solve("cell B1 b1 gnd emf=12.6V r=10mOhm\ncell B2 b2 gnd emf=12.2V r=10mOhm\ndiode D1 b1 x drop=0.4V\ndiode D2 b2 x drop=0.4V\nload L x gnd r=1Ohm\n")
+    assert sol.state("D1") == "conducting" and sol.state("D2") == "blocked"
+    assert sol.voltage("D1") == pytest.approx(0.4, rel=1e-12)
+    i = (12.6 - 0.4) / 1.01  # loop rule through B1, D1 and L
+    assert sol.current("L") == pytest.approx(i, rel=1e-9)
+
+
+def test_junction_diode_obeys_the_shockley_law():
+    # Shockley diode equation with Vt = kT/q (SI 2019 exact constants), checked at the solution
+    sol = solve("cell B b gnd emf=5V r=10mOhm\ndiode D b x is=1e-12A n=1.2 temp=25degC\nresistor R x gnd r=10Ohm\n")
+    vt = 1.380649e-23 * 298.15 / 1.602176634e-19
+    v, i = sol.voltage("D"), sol.current("D")
+    assert i == pytest.approx(1e-12 * (math.exp(v / (1.2 * vt)) - 1) + 1e-12 * v, rel=1e-9)
+    assert i == pytest.approx(sol.current("R"), rel=1e-12)
+    assert 0.5 < v < 0.9
+
+
+def test_iteration_history_is_available():
+    sol = solve("source S a gnd emf=12V r=0.1Ohm\nload L a gnd power=200W\n")
+    h = sol.newton_history
+    assert h and h[-1]["residual_A"] < 1e-6 and {"phase", "iteration", "step_V", "residual_A"} <= set(h[0])
+
+
+@st.composite
+def nonlinear_network(draw):
+    n = draw(st.integers(3, 7))
+    nodes = ["gnd"] + [f"n{k}" for k in range(1, n)]
+    lines = [f"cell B0 n1 gnd emf={draw(st.floats(6, 60))}V r={draw(st.floats(0.005, 0.5))}Ohm"]
+    # a resistive spanning tree keeps every node connected
+    for k in range(2, n):
+        lines.append(f"resistor T{k} {nodes[draw(st.integers(0, k - 1))]} {nodes[k]} r={draw(st.floats(0.01, 10))}Ohm")
+    for k in range(draw(st.integers(1, 6))):
+        a, b = draw(st.sampled_from(nodes)), draw(st.sampled_from(nodes))
+        if a == b:
+            continue
+        kind = draw(st.sampled_from(["resistor", "cell", "diode", "jdiode", "cc", "power"]))
+        if kind == "resistor":
+            lines.append(f"resistor X{k} {a} {b} r={draw(st.floats(0.01, 100))}Ohm")
+        elif kind == "cell":
+            lines.append(f"cell X{k} {a} {b} emf={draw(st.floats(1, 30))}V r={draw(st.floats(0.01, 1))}Ohm")
+        elif kind == "diode":
+            rpart = draw(st.sampled_from(["", f" r={draw(st.floats(0.001, 1))}Ohm"]))
+            lines.append(f"diode X{k} {a} {b} drop={draw(st.floats(0.1, 1.0))}V{rpart}")
+        elif kind == "jdiode":
+            lines.append(f"diode X{k} {a} {b} is={draw(st.floats(1e-14, 1e-8))}A n={draw(st.floats(1, 2))}")
+        elif kind == "cc":
+            lines.append(f"source X{k} {a} {b} emf={draw(st.floats(1, 30))}V r={draw(st.floats(0.01, 1))}Ohm imax={draw(st.floats(0.1, 20))}A")
+        else:
+            lines.append(f"load X{k} {a} {b} power={draw(st.floats(0.01, 5))}W vmin=0.5V")
+    return "\n".join(lines) + "\nground gnd\n"
+
+
+@settings(max_examples=80, deadline=None, suppress_health_check=list(HealthCheck))
+@given(nonlinear_network())
+def test_random_nonlinear_networks_converge_and_balance(text):
+    # Kirchhoff's current law and Tellegen's theorem hold at the converged point, with every
+    # nonlinear element on its own law
+    try:
+        sol = dcnet.parse(text).solve(checks=False)
+    except (E.TopologyError, E.NoOperatingPointError):
+        return  # ideal loops from random wiring, or demands no network could meet, are refused properly
+    assert sol.balance["kcl_relative"] < 1e-6, sol.balance
+    assert sol.balance["power_relative"] < 1e-6, sol.balance
+    # each constant-power load that runs draws its power
+    for el in sol.netlist.elements:
+        if el.kind == "load" and "power" in el.values and sol.state(el.name) == "drawing":
+            assert sol.power(el.name) == pytest.approx(el.values["power"], rel=1e-6)
+    assert np.all(np.isfinite(sol.i))
