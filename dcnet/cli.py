@@ -62,6 +62,7 @@ def _parser() -> argparse.ArgumentParser:
     s.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn); - reads standard input")
     s.add_argument("--format", choices=("table", "json", "csv", "markdown"), default="table", help="output format (default: table)")
     s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input; written to a temporary name, then renamed)")
+    s.add_argument("-v", "--verbose", action="store_true", help="also print the nonlinear solver's iterations (to standard error)")
     s.add_argument(
         "--show",
         nargs="+",
@@ -273,11 +274,27 @@ def _cmd_solve(args) -> int:
             code = _status(sol)
         for w in sol.warnings:
             print(f"dcnet: warning: {files[0]}: {w}", file=sys.stderr)
+        if args.verbose:
+            _print_history(sol, files[0])
         out.finish(args, sol.netlist.files)
         return code
     code = _solve_many(files, options, args, out)
     out.finish(args, files)
     return code
+
+
+def _print_history(sol, file: str) -> None:
+    history = getattr(sol, "newton_history", None)
+    if not history:
+        print(f"dcnet: {file}: linear circuit, solved directly (no iterations)", file=sys.stderr)
+        return
+    print(f"dcnet: {file}: nonlinear solve, {len(history)} iterations", file=sys.stderr)
+    for h in history:
+        print(
+            f"  {h['phase']:<16} scale {h.get('scale', 1.0):4.2f}  #{h['iteration']:<3} step {h.get('step_V', float('nan')):10.3e} V  "
+            f"residual {h['residual_A']:10.3e} A  damping {h.get('alpha', 1.0):6.4f}  modes changed {h['modes_changed']}",
+            file=sys.stderr,
+        )
 
 
 def _show(sol, specs, fmt, file, out) -> int:

@@ -143,3 +143,11 @@ def test_folder_of_a_thousand_files_with_a_few_bad(capsys, tmp_path):
     for k in bad:
         assert f"site{k:04d}.dcn" in err
     assert {p.name: p.read_bytes() for p in folder.iterdir()} == hashes  # nothing overwritten
+
+
+def test_verbose_prints_the_iterations(capsys):
+    code = main(["solve", str(ROOT / "circuits" / "cabin-inverter.dcn"), "--show", "INV.power", "-v"])
+    out, err = capsys.readouterr()
+    assert code == 0
+    assert "nonlinear solve" in err and "residual" in err
+    assert "2.000 kW" in out

@@ -20,7 +20,7 @@ CAUTION = (
     "installations designed, built and checked by licensed practitioners."
 )
 
-_PREFIXES = [(1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n")]
+_PREFIXES = [(1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n"), (1e-12, "p")]
 
 
 def si(value: float, unit: str, digits: int = 4) -> str:
@@ -36,7 +36,7 @@ def si(value: float, unit: str, digits: int = 4) -> str:
         if mag >= factor * 0.9995:
             break
     else:
-        factor, prefix = _PREFIXES[-1]
+        return f"{value:.{max(digits - 1, 0)}e} {unit}"
     scaled = value / factor
     decimals = max(digits - 1 - int(math.floor(math.log10(abs(scaled)))), 0) if scaled else 0
     return f"{scaled:.{decimals}f} {prefix}{unit}"
@@ -60,6 +60,7 @@ _EXTRA_LABELS = {
     "resistance_ohm": ("R", "Ohm"),
     "drop_pct": ("drop", "%"),
     "loading_pct": ("load", "%"),
+    "reverse_V": ("reverse", "V"),
 }
 
 
@@ -67,7 +68,7 @@ def _notes(res: dict[str, Any]) -> str:
     parts = []
     for key, (label, unit) in _EXTRA_LABELS.items():
         if key in res and res[key] is not None and not (isinstance(res[key], float) and math.isnan(res[key])):
-            if key == "emf_power_W":
+            if key == "emf_power_W" or (key == "reverse_V" and not res[key]):
                 continue
             parts.append(f"{label} {si(res[key], unit)}")
     return ", ".join(parts)
