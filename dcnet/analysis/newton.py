@@ -64,10 +64,13 @@ def _groups(bt: BranchTable, dropped: set[int] = frozenset()) -> list[_Group]:
         mask = bt.nonlinear[pos]
         if mask.any():
             grp = _Group(kind_name, pos[mask], {k: col[mask] for k, col in cols.items()})
-            if kind_name == "load" and dropped:
+            if kind_name == "load":
                 from ..kinds.load import DROPPED
 
-                grp.mode[np.isin(grp.pos, list(dropped))] = DROPPED
+                # a constant-power load with both terminals on one node sees no voltage: it cannot run
+                grp.mode[bt.a[grp.pos] == bt.b[grp.pos]] = DROPPED
+                if dropped:
+                    grp.mode[np.isin(grp.pos, list(dropped))] = DROPPED
             out.append(grp)
     return out
 

@@ -258,7 +258,9 @@ def _dropped_out(model: BranchTable, modes: dict) -> list[str]:
     cp = np.flatnonzero(~np.isnan(cols["power"]))
     out = []
     for k, mode in zip(cp, modes["load"]):
-        if mode == DROPPED:
+        if mode == DROPPED and np.isnan(cols["vmin"][k]):
+            out.append(f"load {model.names[pos[k]]} has no voltage across it and cannot run")
+        elif mode == DROPPED:
             out.append(
                 f"load {model.names[pos[k]]} dropped out: it cannot draw {cols['power'][k]:.4g} W without its voltage "
                 f"falling below vmin = {cols['vmin'][k]:.4g} V"

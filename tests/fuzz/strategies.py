@@ -16,7 +16,7 @@ SEEDS = [p.read_text() for p in sorted((ROOT / "circuits").glob("*.dcn"))]
 
 WORDS = [
     "title", "let", "part", "ground", "include", "limit", "block", "end", "use",
-    "resistor", "cell", "source", "supply", "cable", "fuse", "switch", "link", "load", "diode", "bank",
+    "resistor", "cell", "source", "supply", "cable", "fuse", "switch", "link", "load", "diode", "bank", "power", "imax", "drop", "is", "vmin", "series", "parallel",
     "A1", "bus+", "bus-", "gnd", "n.1", "0", "x", "r", "emf", "current", "power", "length", "size", "gauge",
     "metal", "temp", "rating", "state", "part", "max", "among", "from", "to", "copper", "open", "closed",
     "lead-acid", "=", "==", "(", ")", ",", "+", "-", "*", "/", "^", "±", "+-", "%", "#", "\\", "\n", "\n\n",
@@ -77,7 +77,7 @@ def valid_netlist(draw):
     value = st.floats(min_value=1e-6, max_value=1e6, allow_nan=False)
     for k in range(draw(st.integers(1, 14))):
         a, b = draw(st.sampled_from(nodes)), draw(st.sampled_from(nodes))
-        kind = draw(st.sampled_from(["resistor", "cell", "source", "supply", "link", "load", "fuse", "switch", "cable"]))
+        kind = draw(st.sampled_from(["resistor", "cell", "source", "supply", "link", "load", "fuse", "switch", "cable", "diode", "cpload", "ccsource"]))
         props = {
             "resistor": f"r={draw(value)!r}Ohm",
             "cell": f"emf={draw(value)!r}V r={draw(value)!r}Ohm",
@@ -88,7 +88,11 @@ def valid_netlist(draw):
             "fuse": f"rating={draw(value)!r}A" + draw(st.sampled_from(["", f" r={draw(value)!r}Ohm"])),
             "switch": draw(st.sampled_from(["state=open", "state=closed", f"state=closed r={draw(value)!r}Ohm"])),
             "cable": f"length={draw(value)!r}m size={draw(value)!r}mm2",
+            "diode": draw(st.sampled_from([f"drop={draw(st.floats(0, 2))!r}V", f"drop={draw(st.floats(0, 2))!r}V r={draw(value)!r}Ohm", f"is={draw(st.floats(1e-15, 1e-6))!r}A n={draw(st.floats(0.5, 3))!r}"])),
+            "cpload": f"power={draw(value)!r}W" + draw(st.sampled_from(["", f" vmin={draw(st.floats(0, 100))!r}V"])),
+            "ccsource": f"emf={draw(value)!r}V r={draw(value)!r}Ohm imax={draw(value)!r}A",
         }[kind]
+        kind = {"cpload": "load", "ccsource": "source"}.get(kind, kind)
         lines.append(f"{kind} E{k} {a} {b} {props}")
     if draw(st.booleans()):
         lines.append(f"ground {draw(st.sampled_from(nodes))}")
