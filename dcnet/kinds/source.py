@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..units import CURRENT, RESISTANCE, VOLTAGE
-from .base import Kind, Prop, admittance, mixed, nonnegative, positive, safe_inverse
+from .base import Kind, Prop, mixed, nonnegative, positive, safe_inverse
 
 HOLD, LIMIT = 0, 1
 

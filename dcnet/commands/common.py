@@ -1,0 +1,90 @@
+"""What every command shares: input options, solving one file, output that never overwrites."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from ..errors import DcnetError
+
+__all__ = ["EXIT_OK", "EXIT_CHECK_FAILED", "EXIT_BAD_INPUT", "options", "add_input_options", "Output", "solve_one", "status"]
+
+EXIT_OK, EXIT_CHECK_FAILED, EXIT_BAD_INPUT = 0, 1, 2
+
+
+def options(args):
+    from ..language import Options
+
+    return Options(
+        max_file_bytes=args.max_file_bytes,
+        max_elements=args.max_elements,
+        max_include_depth=args.max_include_depth,
+        max_expression_depth=args.max_expression_depth,
+        max_block_depth=args.max_block_depth,
+        allow_outside=args.allow_outside_includes,
+    )
+
+
+def add_input_options(p: argparse.ArgumentParser) -> None:
+    from ..language import Options
+
+    d = Options()
+    g = p.add_argument_group("limits on input (raise them only for files you trust)")
+    g.add_argument("--max-file-bytes", type=int, default=d.max_file_bytes, metavar="N", help=f"largest circuit file read (default {d.max_file_bytes:,})")
+    g.add_argument("--max-elements", type=int, default=d.max_elements, metavar="N", help=f"most elements in one circuit (default {d.max_elements:,})")
+    g.add_argument("--max-include-depth", type=int, default=d.max_include_depth, metavar="N", help=f"deepest nesting of includes (default {d.max_include_depth})")
+    g.add_argument("--max-expression-depth", type=int, default=d.max_expression_depth, metavar="N", help=f"deepest nesting of a value expression (default {d.max_expression_depth})")
+    g.add_argument("--max-block-depth", type=int, default=d.max_block_depth, metavar="N", help=f"deepest nesting of block instances (default {d.max_block_depth})")
+    g.add_argument("--allow-outside-includes", action="store_true", help="follow includes that leave the circuit file's folder")
+
+
+class Output:
+    """Collects what a command prints; sends it to stdout or, atomically, to ``--output``."""
+
+    def __init__(self):
+        import io
+
+        self.buf = io.StringIO()
+
+    def write(self, text: str) -> None:
+        self.buf.write(text)
+
+    def finish(self, args, inputs) -> None:
+        text = self.buf.getvalue()
+        target = getattr(args, "output", None)
+        if target:
+            from ..files import atomic_write_text
+
+            atomic_write_text(target, text, protect=list(inputs))
+        else:
+            sys.stdout.write(text)
+            sys.stdout.flush()
+
+
+def solve_one(path: str, options):
+    """Load and solve one file; returns (solution, error)."""
+    from ..language import load, parse
+
+    try:
+        if path == "-":
+            net = parse(sys.stdin.read(), "<stdin>", options)
+        else:
+            net = load(path, options)
+        return net.solve(), None
+    except DcnetError as err:
+        if err.span is None:
+            from ..errors import Span
+
+            err.span = Span("<stdin>" if path == "-" else path)
+        return None, err
+    except RecursionError:
+        from ..errors import LimitError, Span
+
+        return None, LimitError("the file nests too deeply to read", span=Span(path), hint="simplify deeply nested expressions")
+
+
+def status(sol) -> int:
+    return EXIT_CHECK_FAILED if sol.failed else EXIT_OK
+
+
+# ------------------------------------------------------------------- check

@@ -1,0 +1,49 @@
+"""``dcnet layouts``: a bank solved with its main leads at the same end, opposite ends and the centre."""
+
+from __future__ import annotations
+
+import json
+import sys
+
+from ..errors import DcnetError
+from .common import EXIT_BAD_INPUT, EXIT_OK, add_input_options, options
+
+
+
+def add_parser(sub) -> None:
+    lay = sub.add_parser("layouts", help="solve a bank with its main leads tapped at the same end, opposite ends and the centre, side by side")
+    lay.add_argument("file", metavar="FILE")
+    lay.add_argument("--bank", metavar="NAME", help="which bank (default: every bank in the file)")
+    lay.add_argument("--format", choices=("table", "json"), default="table")
+    add_input_options(lay)
+    lay.set_defaults(run=run)
+
+
+def run(args) -> int:
+    from ..analysis.layouts import compare_taps
+    from ..report import text as rt
+
+    opts = options(args)
+    path = args.file
+    try:
+        tables = compare_taps(path, opts, only=args.bank)
+    except DcnetError as err:
+        print(err.render(), file=sys.stderr)
+        return EXIT_BAD_INPUT
+    if args.format == "json":
+        print(json.dumps(tables, indent=2))
+        return EXIT_OK
+    for t in tables:
+        print(f"bank {t['bank']}: {t['series']}s{t['parallel']}p, string currents by tap position (A, discharge positive)")
+        header = ["string"] + [lay["tap"] for lay in t["layouts"]]
+        rows = [header]
+        for j in range(t["parallel"]):
+            rows.append([f"s{j + 1}"] + [f"{lay['string_currents_A'][j]:.4g}" for lay in t["layouts"]])
+        rows.append(["imbalance"] + [("-" if lay["imbalance_pct"] is None else f"{lay['imbalance_pct']:.2f} %") for lay in t["layouts"]])
+        rows.append(["bank voltage"] + [f"{lay['bank_voltage_V']:.4g} V" for lay in t["layouts"]])
+        print("\n".join(rt.columns(rows, right=set(range(1, len(header))))))
+        print()
+    print(rt.wrapped_caution())
+    return EXIT_OK
+
+

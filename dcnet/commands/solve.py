@@ -1,0 +1,169 @@
+"""``dcnet solve``: potentials, currents and powers of circuit files (and their checks)."""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+
+from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options, solve_one, status
+
+
+
+def add_parser(sub) -> None:
+    s = sub.add_parser("solve", help="solve circuit files and print potentials, currents and powers")
+    s.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn), folders or patterns; - reads standard input")
+    s.add_argument("--format", choices=("table", "json", "csv", "markdown"), default="table", help="output format (default: table)")
+    s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input; written to a temporary name, then renamed)")
+    s.add_argument("-v", "--verbose", action="store_true", help="also print the nonlinear solver's iterations (to standard error)")
+    s.add_argument(
+        "--show",
+        nargs="+",
+        metavar="QUANTITY",
+        help="print only these: ELEMENT.current, ELEMENT.voltage, ELEMENT.power, NODE.potential, "
+        "ELEMENT.<extra> (e.g. P1.drop_pct), or NODE,NODE for the voltage between two nodes",
+    )
+    add_input_options(s)
+    s.set_defaults(run=run)
+
+
+def run(args) -> int:
+    from ..files import expand_inputs
+    from ..report import text as rt
+
+    opts = options(args)
+    files = expand_inputs(args.files)
+    out = Output()
+    if len(files) == 1 and not Path(args.files[0]).is_dir():
+        sol, err = solve_one(files[0], opts)
+        if err is not None:
+            print(err.render(), file=sys.stderr)
+            return EXIT_BAD_INPUT
+        if args.show:
+            code = _show(sol, args.show, args.format, files[0], out)
+        else:
+            result = sol.to_dict()
+            if args.format == "json":
+                out.write(json.dumps({"file": files[0], **result}, indent=2) + "\n")
+            elif args.format == "csv":
+                out.write(rt.csv_text(result))
+            elif args.format == "markdown":
+                out.write(rt.markdown(result, files[0]) + "\n")
+            else:
+                out.write(rt.table(result, files[0]) + "\n")
+            code = status(sol)
+        for w in sol.warnings:
+            print(f"dcnet: warning: {files[0]}: {w}", file=sys.stderr)
+        if args.verbose:
+            _print_history(sol, files[0])
+        out.finish(args, sol.netlist.files)
+        return code
+    code = _solve_many(files, opts, args, out)
+    out.finish(args, files)
+    return code
+
+
+def _print_history(sol, file: str) -> None:
+    history = getattr(sol, "newton_history", None)
+    if not history:
+        print(f"dcnet: {file}: linear circuit, solved directly (no iterations)", file=sys.stderr)
+        return
+    print(f"dcnet: {file}: nonlinear solve, {len(history)} iterations", file=sys.stderr)
+    for h in history:
+        print(
+            f"  {h['phase']:<16} scale {h.get('scale', 1.0):4.2f}  #{h['iteration']:<3} step {h.get('step_V', float('nan')):10.3e} V  "
+            f"residual {h['residual_A']:10.3e} A  damping {h.get('alpha', 1.0):6.4f}  modes changed {h['modes_changed']}",
+            file=sys.stderr,
+        )
+
+
+def _show(sol, specs, fmt, file, out) -> int:
+    from ..analysis.solution import QuantityError
+    from ..report import text as rt
+
+    values = []
+    for spec in specs:
+        try:
+            values.append(sol.quantity(spec))
+        except QuantityError as exc:
+            print(f"dcnet: {file}: {exc}", file=sys.stderr)
+            return EXIT_BAD_INPUT
+    if fmt == "json":
+        out.write(json.dumps({"file": file, "values": {label: value for label, value, _ in values}}, indent=2) + "\n")
+    elif fmt == "csv":
+        out.write("quantity,value,unit\n")
+        for label, value, unit in values:
+            out.write(f"{label},{value!r},{unit}\n")
+    else:
+        out.write("\n".join(rt.show_lines(values)) + "\n")
+    return status(sol)
+
+
+def _solve_many(files, opts, args, out) -> int:
+    from ..report import text as rt
+
+    counts = {"ok": 0, "check failed": 0, "refused": 0}
+    records = []
+    worst = EXIT_OK
+    for path in files:
+        sol, err = solve_one(path, opts)
+        if err is not None:
+            counts["refused"] += 1
+            worst = EXIT_BAD_INPUT
+            print(err.render(), file=sys.stderr)
+            records.append({"file": path, "status": "refused", "error": str(err)})
+            continue
+        code = status(sol)
+        worst = max(worst, code)
+        word = "ok" if code == EXIT_OK else "check failed"
+        counts[word] += 1
+        rec = {"file": path, "status": word, "elements": len(sol.netlist.elements), "nodes": len(sol.netlist.node_index)}
+        rec["kcl_max_residual_A"] = sol.balance["kcl_max_residual_A"]
+        if args.show:
+            from ..analysis.solution import QuantityError
+
+            try:
+                rec["values"] = {label: value for label, value, _ in (sol.quantity(q) for q in args.show)}
+            except QuantityError as exc:
+                rec["values"] = {}
+                rec["error"] = str(exc)
+        if args.format == "json":
+            rec["result"] = sol.to_dict()
+        records.append(rec)
+    summary = f"{len(files)} files: {counts['ok']} ok, {counts['check failed']} failed a check, {counts['refused']} refused"
+    if args.format == "json":
+        out.write(json.dumps({"files": records, "summary": counts}, indent=2) + "\n")
+    elif args.format == "csv":
+        import csv
+        import io
+
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        keys = sorted({k for r in records for k in r.get("values", {})})
+        w.writerow(["file", "status", "elements", "nodes", "kcl_max_residual_A", *keys, "error"])
+        for r in records:
+            vals = r.get("values", {})
+            w.writerow([r["file"], r["status"], r.get("elements", ""), r.get("nodes", ""), r.get("kcl_max_residual_A", ""), *[vals.get(k, "") for k in keys], r.get("error", "")])
+        out.write(buf.getvalue())
+    else:
+        rows = [["file", "status", "elements", "nodes", "detail"]]
+        for r in records:
+            detail = r.get("error", "")
+            if "values" in r:
+                detail = "; ".join(f"{k} = {v:.6g}" for k, v in r["values"].items())
+            rows.append([r["file"], r["status"], str(r.get("elements", "")), str(r.get("nodes", "")), detail])
+        lines = rt.columns(rows, right={2, 3}, indent="")
+        if args.format == "markdown":
+            out.write("| file | status | elements | nodes | detail |\n|---|---|---:|---:|---|\n")
+            for r in rows[1:]:
+                out.write("| " + " | ".join(r) + " |\n")
+        else:
+            out.write("\n".join(lines) + "\n")
+        out.write(summary + "\n")
+        if args.format == "table":
+            out.write("\n" + rt.wrapped_caution() + "\n")
+    if args.format in ("json", "csv") or args.output:
+        print(summary, file=sys.stderr)
+    return worst
+
+
