@@ -60,8 +60,11 @@ class Netlist:
     elements: list[Element] = field(default_factory=list)
     limits: list[Limit] = field(default_factory=list)
     values: dict[str, tuple[float, Any, float | None]] = field(default_factory=dict)
-    #: expression trees of named values (and of properties that use them), for studies
-    exprs: dict[tuple[str, str], Any] = field(default_factory=dict)
+    #: expression trees, for studies that vary the named values: ``("let", NAME)`` -> the
+    #: let's value tree (``("value", expr, tolerance_or_None)``); ``("element", NAME, PROP)``
+    #: -> the tree of an element property that uses let values (before the kind's ``finish``
+    #: derives anything from it). Trees are those of dcnet.language.expressions.
+    exprs: dict[tuple, Any] = field(default_factory=dict)
     files: list[str] = field(default_factory=list)
     #: bank shorthand metadata: name -> {series, parallel, tap, pos, neg, strings (cell names per string), prefix}
     banks: dict[str, dict[str, Any]] = field(default_factory=dict)

@@ -89,10 +89,12 @@ def expand_bank(st, s, file: str) -> None:
     own = [p for p in s.props if not _TARGET.match(p.key)]
     targeted = [p for p in s.props if _TARGET.match(p.key)]
     values: dict[str, Any] = {}
+    st.pending_deps = {}
     for p in own:
         if p.key in values:
             raise InputError(f"property '{p.key}' is given twice", span=Span(file, p.line, p.column, len(p.key)))
         values[p.key] = _resolve_prop(st, BANK, p, file, name)
+    bank_deps = dict(st.pending_deps)
     for spec in BANK.props.values():
         if spec.name not in values:
             if spec.required:
@@ -123,6 +125,7 @@ def expand_bank(st, s, file: str) -> None:
     # per-string and per-cell overrides
     per_string: dict[int, dict[str, Any]] = {}
     per_cell: dict[tuple[int, int], dict[str, Any]] = {}
+    target_deps: dict[tuple, dict[str, Any]] = {}
     for p in targeted:
         j, i, key = _TARGET.match(p.key).groups()
         j = int(j)
@@ -133,6 +136,7 @@ def expand_bank(st, s, file: str) -> None:
                 f"{p.key}: bank {name} has strings s1..s{P} and cells c1..c{S}",
                 span=kspan,
             )
+        st.pending_deps = {}
         if key == "ageing":
             q = _resolve_prop(st, BANK, _renamed(p, "ageing"), file, name)
         else:
@@ -141,6 +145,8 @@ def expand_bank(st, s, file: str) -> None:
         if key in target:
             raise InputError(f"property '{p.key}' is given twice", span=kspan)
         target[key] = q
+        if key in st.pending_deps:
+            target_deps.setdefault((j, i), {})[key] = st.pending_deps[key]
 
     rng = None
     if values.get("spread"):
@@ -164,8 +170,15 @@ def expand_bank(st, s, file: str) -> None:
         _check_new_name(st, ename, name_span)
         add_element(st, Element(ename, kind, (a, b), vals, span))
 
-    def finished(kind: str, ename: str, vals: dict[str, Any]) -> dict[str, Any]:
-        return element_values(st, KINDS[kind], (), file, ename, name_span, extra=vals)
+    def finished(kind: str, ename: str, vals: dict[str, Any], deps: dict[str, Any] | None = None) -> dict[str, Any]:
+        out = element_values(st, KINDS[kind], (), file, ename, name_span, extra=vals)
+        st.pending_deps = dict(deps or {})  # recorded by add_element for studies
+        return out
+
+    def own_deps(mapping: dict[str, str]) -> dict[str, Any]:
+        return {prop: bank_deps[key] for key, prop in mapping.items() if key in bank_deps}
+
+    part_deps = st.part_deps.get(part_name, {})
 
     strings: list[list[str]] = []
     bank_ageing = values.get("ageing", 1.0)
@@ -181,7 +194,7 @@ def expand_bank(st, s, file: str) -> None:
             node = bottom
             if "lead" in values:
                 node = f"{name}.s{j}.c1-"
-                add("link", f"{name}.s{j}.lead-", node, bottom, finished("link", f"{name}.s{j}.lead-", {"r": values["lead"]}))
+                add("link", f"{name}.s{j}.lead-", node, bottom, finished("link", f"{name}.s{j}.lead-", {"r": values["lead"]}, own_deps({"lead": "r"})))
             for i in range(1, S + 1):
                 c_over = per_cell.get((j, i), {})
                 cell_vals = dict(base_cell)
@@ -198,12 +211,19 @@ def expand_bank(st, s, file: str) -> None:
                 cname = f"{name}.s{j}.c{i}"
                 last = i == S
                 plus = top if (last and "fuse" not in values and "lead" not in values) else f"{name}.s{j}.c{i}+"
-                add("cell", cname, plus, node, finished("cell", cname, cell_vals))
+                deps = {k: t for k, t in part_deps.items() if k not in s_over and k not in c_over}
+                deps.update(target_deps.get((j, None), {}))
+                deps.update(target_deps.get((j, i), {}))
+                if "r" in deps and factor != 1.0:
+                    from ..units import Quantity
+
+                    deps["r"] = ("mul", deps["r"], ("q", Quantity(factor), 0, 0))
+                add("cell", cname, plus, node, finished("cell", cname, cell_vals, deps))
                 names.append(cname)
                 node = plus
                 if not last and has_strap:
                     nxt = f"{name}.s{j}.c{i + 1}-"
-                    add("link", f"{name}.s{j}.strap{i}", node, nxt, finished("link", f"{name}.s{j}.strap{i}", {"r": values["strap"]}))
+                    add("link", f"{name}.s{j}.strap{i}", node, nxt, finished("link", f"{name}.s{j}.strap{i}", {"r": values["strap"]}, own_deps({"strap": "r"})))
                     node = nxt
             # positive end: fuse, then lead, to the bus
             if "fuse" in values:
@@ -213,16 +233,16 @@ def expand_bank(st, s, file: str) -> None:
                 if "interrupt" in values:
                     fvals["interrupt"] = values["interrupt"]
                 after = top if "lead" not in values else f"{name}.s{j}.fused"
-                add("fuse", f"{name}.s{j}.fuse", node, after, finished("fuse", f"{name}.s{j}.fuse", fvals))
+                add("fuse", f"{name}.s{j}.fuse", node, after, finished("fuse", f"{name}.s{j}.fuse", fvals, own_deps({"fuse": "rating", "fuse_r": "r", "interrupt": "interrupt"})))
                 node = after
             if "lead" in values:
-                add("link", f"{name}.s{j}.lead+", node, top, finished("link", f"{name}.s{j}.lead+", {"r": values["lead"]}))
+                add("link", f"{name}.s{j}.lead+", node, top, finished("link", f"{name}.s{j}.lead+", {"r": values["lead"]}, own_deps({"lead": "r"})))
             strings.append(names)
         if has_bus:
             for j in range(1, P):
                 for pole in "+-":
                     seg = f"{name}.bus{pole}.{j}"
-                    add("link", seg, junction(pole, j), junction(pole, j + 1), finished("link", seg, {"r": values["bus"]}))
+                    add("link", seg, junction(pole, j), junction(pole, j + 1), finished("link", seg, {"r": values["bus"]}, own_deps({"bus": "r"})))
     except DcnetError as err:
         err.with_span(name_span, _src(st, file, s.line))
         raise

@@ -106,6 +106,10 @@ class _State:
     include_stack: list[Path] = field(default_factory=list)
     blocks: dict[str, _Block] = field(default_factory=dict)
     scope: _Scope = field(default_factory=_Scope)
+    #: expression trees of the properties just resolved that use let values (key -> tree)
+    pending_deps: dict[str, Any] = field(default_factory=dict)
+    part_deps: dict[str, dict[str, Any]] = field(default_factory=dict)
+    last_tree: Any = None
 
     def __post_init__(self):
         self.scope.env = self.env
@@ -455,6 +459,8 @@ def _resolve_prop(st: _State, kind: Kind, p: Prop, file: str, owner: str) -> Any
     if spec.form == "gauge":
         return p.raw.strip()
     q = _quantity(st, p.raw, span, file)
+    if st.last_tree is not None:
+        st.pending_deps[p.key] = st.last_tree
     if q.dim != spec.dim:
         hint = None
         if q.dim == DIMENSIONLESS:
@@ -483,6 +489,7 @@ def _example_unit(dim) -> str:
 
 
 def _quantity(st: _State, raw: str, span: Span, file: str) -> Quantity:
+    st.last_tree = None
     q = st.const_cache.get(raw)
     if q is not None:
         return q
@@ -496,6 +503,8 @@ def _quantity(st: _State, raw: str, span: Span, file: str) -> Quantity:
     q = _eval(st, tree[1], span)
     if not names_in(tree[1]) - _unit_names(tree[1]):
         st.const_cache[raw] = q
+    elif st.scope.depth == 0:
+        st.last_tree = tree[1]  # depends on let values: studies re-evaluate it
     return q
 
 
@@ -509,11 +518,14 @@ def _part(st: _State, s: Statement, file: str) -> None:
     if name in st.parts:
         raise InputError(f"part '{name}' is already defined", span=Span(file, *s.arg_pos[0], len(name)))
     values = {}
+    st.pending_deps = {}
     for p in s.props:
         if p.key == "part":
             raise InputError("a part cannot use another part", span=Span(file, p.line, p.column, 4))
         values[p.key] = _resolve_prop(st, kind, p, file, f"part {name}")
     st.parts[name] = (kind.name, values, Span(file, s.line, s.column, len(name)))
+    st.part_deps[name] = dict(st.pending_deps)
+    st.pending_deps = {}
 
 
 def _kind(st: _State, kind_name: str, file: str, pos) -> Kind:
@@ -558,6 +570,7 @@ def element_values(st: _State, kind: Kind, props, file: str, name: str, name_spa
     ``extra`` (already resolved) overrides the part. Runs the kind's ``finish``."""
     values: dict[str, Any] = {}
     part_prop = None
+    st.pending_deps = {}
     for p in props:
         if p.key == "part":
             part_prop = p
@@ -565,12 +578,18 @@ def element_values(st: _State, kind: Kind, props, file: str, name: str, name_spa
         if p.key in values:
             raise InputError(f"property '{p.key}' is given twice", span=Span(file, p.line, p.column, len(p.key)))
         values[p.key] = _resolve_prop(st, kind, p, file, name)
+    deps = dict(st.pending_deps)
     if part_prop is not None:
-        merged = dict(_part_values(st, kind, part_prop.raw.strip(), name, _value_span(file, part_prop)))
+        pname = part_prop.raw.strip()
+        merged = dict(_part_values(st, kind, pname, name, _value_span(file, part_prop)))
         merged.update(values)
         values = merged
+        deps = {**{k: t for k, t in st.part_deps.get(pname, {}).items() if k not in deps}, **deps}
     if extra:
         values.update(extra)
+        for k in extra:
+            deps.pop(k, None)
+    st.pending_deps = deps
     for spec in kind.props.values():
         if spec.name not in values:
             if spec.required:
@@ -612,6 +631,9 @@ def add_element(st: _State, element: Element) -> None:
             hint="raise the limit with --max-elements if the file is trusted",
         )
     st.net.add(element)
+    for key, tree in st.pending_deps.items():
+        st.net.exprs[("element", element.name, key)] = tree
+    st.pending_deps = {}
 
 
 def _ground(st: _State, s: Statement, file: str) -> None:
