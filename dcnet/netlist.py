@@ -68,6 +68,8 @@ class Netlist:
     files: list[str] = field(default_factory=list)
     #: bank shorthand metadata: name -> {series, parallel, tap, pos, neg, strings (cell names per string), prefix}
     banks: dict[str, dict[str, Any]] = field(default_factory=dict)
+    #: the charge/discharge schedule written in the file (dcnet.analysis.cycle.Phase records)
+    phases: list[Any] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     node_index: dict[str, int] = field(default_factory=dict)
     _by_name: dict[str, int] = field(default_factory=dict, repr=False)

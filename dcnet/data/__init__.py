@@ -237,3 +237,22 @@ def chemistry(name: str) -> dict | None:
         out[q] = value
         out["sources"][q] = source + note
     return out
+
+
+# ----------------------------------------------------------------- OCV curves
+
+
+@lru_cache(maxsize=None)
+def ocv_curve(chemistry: str):
+    """``(soc fractions, volts per cell, sources)`` of a chemistry's resting-voltage curve, or None.
+
+    ``agm`` and ``gel`` use the lead-acid curve (valve-regulated lead-acid, from memory).
+    """
+    import numpy as np
+
+    key = {"agm": "lead-acid", "gel": "lead-acid"}.get(chemistry.strip().lower(), chemistry.strip().lower())
+    rows = [(float(soc) / 100.0, float(volts), source) for name, soc, volts, source in read_table("ocv.tsv", 4) if name == key]
+    if not rows:
+        return None
+    rows.sort()
+    return np.array([r[0] for r in rows]), np.array([r[1] for r in rows]), sorted({r[2] for r in rows})

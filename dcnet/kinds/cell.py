@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..units import CHARGE, CURRENT, DIMENSIONLESS, RESISTANCE, VOLTAGE
+from ..units import CHARGE, CURRENT, DIMENSIONLESS, RESISTANCE, TIME, VOLTAGE
 from .base import Kind, Prop, admittance, positive
 
 CHEMISTRIES = ("lead-acid", "agm", "gel", "lifepo4", "nmc", "lto", "nimh")
@@ -17,11 +17,17 @@ CHEMISTRIES = ("lead-acid", "agm", "gel", "lifepo4", "nmc", "lto", "nimh")
 
 class Cell(Kind):
     def finish(self, values):
+        from ..errors import ValueRangeError
+
         soc = values.get("soc")
         if soc is not None and not 0.0 <= soc <= 1.0:
-            from ..errors import ValueRangeError
-
             raise ValueRangeError(f"soc must lie between 0% and 100%, got {soc * 100:g}%")
+        eta = values.get("eta")
+        if eta is not None and not 0.0 < eta <= 1.0:
+            raise ValueRangeError(f"eta (coulombic efficiency) must lie above 0% and at most 100%, got {eta * 100:g}%")
+        k = values.get("peukert")
+        if k is not None and not 1.0 <= k <= 2.0:
+            raise ValueRangeError(f"peukert exponent must lie between 1 and 2, got {k:g}", hint="lead-acid batteries are typically 1.1 to 1.3")
         return values
 
     def branches(self, cols):
@@ -48,6 +54,12 @@ KIND = Cell(
         "vmin": Prop("vmin", VOLTAGE, doc="lowest allowed terminal voltage"),
         "vmax": Prop("vmax", VOLTAGE, doc="highest allowed terminal voltage"),
         "imax": Prop("imax", CURRENT, check=positive, doc="largest allowed current magnitude"),
+        # for charge/discharge cycles (dcnet cycle)
+        "curve": Prop("curve", form="word", words=("chemistry", "flat"), doc="EMF against state of charge in cycles: the chemistry's curve (default where it has one) or flat"),
+        "r_empty": Prop("r_empty", RESISTANCE, check=positive, doc="internal resistance at 0 % state of charge (linear in between)"),
+        "eta": Prop("eta", DIMENSIONLESS, doc="coulombic (charge) efficiency, default 100 %"),
+        "peukert": Prop("peukert", DIMENSIONLESS, check=positive, doc="Peukert exponent (discharge), default 1"),
+        "rate": Prop("rate", TIME, check=positive, doc="discharge time at which capacity is rated (Peukert), default 20 h"),
     },
     columns=("emf", "r", "capacity", "vmin", "vmax", "imax"),
     is_source=True,

@@ -710,8 +710,47 @@ def _limit(st: _State, s: Statement, file: str) -> None:
     st.net.limits.append(Limit(rule, values, Span(file, s.line, s.column, len(rule))))
 
 
+def _phase(st: _State, s: Statement, file: str) -> None:
+    """A phase of the charge/discharge schedule (see dcnet.analysis.cycle)."""
+    from ..analysis.cycle import PHASE_PROPS, Phase
+
+    label = s.args[0]
+    if st.scope.depth:
+        raise InputError("phases belong at the top level, not inside a block", span=Span(file, *s.arg_pos[0], len(label)))
+    values: dict[str, Any] = {}
+    for p in s.props:
+        spec = PHASE_PROPS.get(p.key)
+        if spec is None:
+            near = suggest(p.key, PHASE_PROPS)
+            raise UnknownNameError(
+                f"a phase has no property '{p.key}'",
+                span=Span(file, p.line, p.column, len(p.key)),
+                hint=(f"did you mean '{near}'? " if near else "") + "a phase takes: " + ", ".join(PHASE_PROPS),
+            )
+        if p.key in values:
+            raise InputError(f"property '{p.key}' is given twice", span=Span(file, p.line, p.column, len(p.key)))
+        span = _value_span(file, p)
+        if spec == "words":
+            values[p.key] = tuple(w.strip() for w in p.raw.split(",") if w.strip())
+        elif spec == "word":
+            values[p.key] = p.raw.strip()
+        else:
+            q = _quantity(st, p.raw, span, file)
+            if q.dim != spec:
+                raise DimensionError(f"{p.key} of phase {label} must be {dim_name(spec)}, got {dim_name(q.dim)}", span=span)
+            if p.key in ("for", "max", "step") and q.value <= 0:
+                raise ValueRangeError(f"{p.key} must be greater than zero, got {q.value:g} s", span=span)
+            values[p.key] = q.value
+    try:
+        st.net.phases.append(Phase.from_values(label, values, Span(file, s.line, s.column, len(label))))
+    except DcnetError as err:
+        err.with_span(Span(file, *s.arg_pos[0], len(label)), _src(st, file, s.line))
+        raise
+
+
 _HANDLERS.update(
     {
+        "phase": _phase,
         "element": _element,
         "let": _let,
         "part": _part,
@@ -726,6 +765,8 @@ _HANDLERS.update(
 # ------------------------------------------------------------------ finish
 def _finish(st: _State) -> None:
     net = st.net
+    for ph in net.phases:
+        ph.check_names(net)
     if not net.elements:
         raise InputError(
             "the circuit has no elements",

@@ -30,7 +30,7 @@ __all__ = [
     "KEYWORDS",
 ]
 
-KEYWORDS = ("title", "let", "part", "ground", "include", "limit", "block", "end", "use")
+KEYWORDS = ("title", "let", "part", "ground", "include", "limit", "block", "end", "use", "phase")
 
 
 # ----------------------------------------------------------------- records
@@ -108,6 +108,9 @@ class _Builder(Transformer):
 
     def limit(self, items):
         return self._make("limit", items[:1], items[1:], items[0])
+
+    def phase(self, items):
+        return self._make("phase", items[:1], items[1:], items[0])
 
     def block(self, items):
         toks = [t for t in items if isinstance(t, Token)]
@@ -447,6 +450,7 @@ _USAGE = {
     "block": "block NAME (PORT, PORT, ...)",
     "end": "end (closing a block)",
     "use": "use NAME BLOCK (NODE, NODE, ...) key=value ...",
+    "phase": "phase LABEL on=ELEMENT,... for=DURATION | until-condition max=DURATION",
 }
 
 

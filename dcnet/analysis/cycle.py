@@ -1,0 +1,603 @@
+"""Charge and discharge cycles: time stepping with cell state and an energy ledger.
+
+A schedule is a list of :class:`Phase` records (``phase`` statements of the circuit file,
+or built from the API). In each phase only the sources, supplies and loads named in ``on``
+are connected; cells and the wiring between them always are. Time advances in quasi-static
+steps: at each step the cells' EMFs (and, with ``r_empty``, their internal resistances)
+follow their states of charge, the circuit is solved, and the states of charge move by the
+charge that flowed. While the resistances stay put, one factorisation of the circuit matrix
+serves every step (only the right-hand side changes); nonlinear circuits are solved by the
+Newton solver at each step.
+
+State of charge: charging adds ``eta * I * dt / C``; discharging removes ``I * dt / C``, or
+with a Peukert exponent ``k`` (lead-acid) ``I * dt / C * (I / I_H)^(k - 1)`` where
+``I_H = C / H`` is the current that empties the battery in its rated time ``H`` (``rate``,
+default 20 h): at constant current a full battery then lasts ``t = H * (C / (I H))^k``.
+
+The energy ledger integrates every element's absorbed power with the same rule, so it
+closes to round-off by Tellegen's theorem; a cell's share is split into energy stored (EMF
+times current, times ``eta`` when charging), charge not stored (coulombic loss) and heat in
+its internal resistance.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import sys
+import time as _time
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ..errors import InputError, Span, UnknownNameError
+from ..units import CURRENT, DIMENSIONLESS, TIME, VOLTAGE
+
+__all__ = ["Phase", "Condition", "CycleResult", "run", "PHASE_PROPS"]
+
+PHASE_PROPS: dict[str, Any] = {
+    "on": "words",
+    "for": TIME,
+    "max": TIME,
+    "step": TIME,
+    "soc_above": DIMENSIONLESS,
+    "soc_below": DIMENSIONLESS,
+    "of": "words",
+    "volts_above": VOLTAGE,
+    "volts_below": VOLTAGE,
+    "amps_above": CURRENT,
+    "amps_below": CURRENT,
+    "at": "word",
+}
+
+DEFAULT_MAX = 100 * 3600.0
+DEFAULT_STEP = 60.0
+MAX_SOC_STEP = 0.002  # largest change of any cell's state of charge in one step
+EVENT_TOL = 1e-3  # seconds
+
+
+@dataclass
+class Condition:
+    """Stop when ``quantity`` (soc, volts, amps) goes above/below ``threshold``."""
+
+    quantity: str
+    sense: str
+    threshold: float
+    at: str | None = None
+    of: tuple[str, ...] = ()
+
+    def describe(self) -> str:
+        unit = {"soc": "%", "volts": "V", "amps": "A"}[self.quantity]
+        value = self.threshold * 100 if self.quantity == "soc" else self.threshold
+        where = f" at {self.at}" if self.at else (f" of {','.join(self.of)}" if self.of else "")
+        return f"{self.quantity}{where} {self.sense} {value:g} {unit}"
+
+
+@dataclass
+class Phase:
+    """One phase of a schedule: what is connected, and when it ends."""
+
+    label: str
+    on: tuple[str, ...] = ()
+    duration: float | None = None
+    max_time: float | None = None
+    step: float | None = None
+    conditions: list[Condition] = field(default_factory=list)
+    span: Span | None = None
+
+    @classmethod
+    def from_values(cls, label: str, values: dict[str, Any], span: Span | None = None) -> Phase:
+        conditions = []
+        at, of = values.get("at"), tuple(values.get("of", ()))
+        for key in ("soc_above", "soc_below", "volts_above", "volts_below", "amps_above", "amps_below"):
+            if key in values:
+                quantity, sense = key.split("_")
+                if quantity != "soc" and not at:
+                    raise InputError(f"{key}= needs at= (the node, two nodes 'a,b', or the element it watches)", span=span)
+                conditions.append(Condition(quantity, sense, values[key], at if quantity != "soc" else None, of if quantity == "soc" else ()))
+        if "for" in values and conditions:
+            raise InputError("a phase ends after for= or on a condition, not both", span=span, hint="use max= as the time limit of a condition")
+        if "for" not in values and not conditions and "max" not in values:
+            raise InputError(
+                f"phase {label} has no end: give for=DURATION, or a condition (soc_above=, volts_below=, amps_below= ...) with max=",
+                span=span,
+            )
+        return cls(label, tuple(values.get("on", ())), values.get("for"), values.get("max"), values.get("step"), conditions, span)
+
+    def check_names(self, net) -> None:
+        from ..kinds import KINDS
+        from ..language.parser import suggest
+
+        for name in self.on:
+            if not net.has_element(name):
+                raise UnknownNameError(f"phase {self.label}: no element named '{name}'", span=self.span, hint=_near(name, net._by_name, suggest))
+            kind = KINDS[net.element(name).kind]
+            if not (kind.is_source or net.element(name).kind == "load"):
+                raise InputError(f"phase {self.label}: {name} is a {net.element(name).kind}; on= lists sources, supplies and loads", span=self.span)
+        for c in self.conditions:
+            for name in c.of:
+                if not net.has_element(name) and name not in net.banks:
+                    raise UnknownNameError(f"phase {self.label}: no cell or bank named '{name}'", span=self.span, hint=_near(name, net._by_name, suggest))
+            if c.at:
+                for part in c.at.split(","):
+                    if part not in net.node_index and not net.has_element(part):
+                        raise UnknownNameError(
+                            f"phase {self.label}: no node or element named '{part}'",
+                            span=self.span,
+                            hint=_near(part, list(net.node_index) + list(net._by_name), suggest),
+                        )
+
+
+def _near(name, known, suggest) -> str | None:
+    near = suggest(name, known)
+    return f"did you mean '{near}'?" if near else None
+
+
+# --------------------------------------------------------------------- result
+@dataclass
+class CycleResult:
+    """Time series, per-phase summary and the energy ledger of a cycle."""
+
+    netlist: Any
+    times: np.ndarray
+    phase_of_sample: np.ndarray
+    cell_names: list[str]
+    soc: np.ndarray  # [samples, cells]
+    cell_current: np.ndarray  # [samples, cells], passive sign
+    node_names: list[str]
+    potentials: np.ndarray  # [samples, nodes]
+    phases: list[dict]
+    ledger: dict[str, Any]
+    throughput: dict[str, dict[str, float]]
+    circulating: dict[str, Any]
+    solves: int
+    factorisations: int
+    wall_s: float
+    notes: list[str]
+
+    def to_dict(self) -> dict:
+        return {
+            "title": self.netlist.title,
+            "phases": self.phases,
+            "ledger": self.ledger,
+            "throughput_Ah": self.throughput,
+            "circulating": self.circulating,
+            "final_soc": {n: float(s) for n, s in zip(self.cell_names, self.soc[-1])},
+            "solves": self.solves,
+            "factorisations": self.factorisations,
+            "notes": self.notes,
+        }
+
+
+# --------------------------------------------------------------------- engine
+class _Cells:
+    """State of every cell: charge, EMF curve, resistance law, efficiency, Peukert."""
+
+    def __init__(self, net, bt):
+        from ..data import ocv_curve
+
+        pos, cols = bt.groups.get("cell", (np.zeros(0, dtype=np.int64), {}))
+        self.pos = pos
+        els = [net.elements[p] for p in pos]
+        self.names = [e.name for e in els]
+        missing = [e.name for e in els if "capacity" not in e.values]
+        if missing:
+            raise InputError(
+                f"a cycle needs capacity= on every cell; missing on {', '.join(missing[:8])}" + (" ..." if len(missing) > 8 else ""),
+                span=els[0].span if els else None,
+                hint="e.g. part agm cell emf=12.8V r=5mOhm capacity=100Ah chemistry=agm",
+            )
+        n = len(els)
+        self.capacity = np.array([e.values["capacity"] for e in els])
+        self.soc0 = np.array([e.values.get("soc", 1.0) for e in els])
+        self.emf0 = np.array([e.values["emf"] for e in els])
+        self.r_full = np.array([e.values["r"] for e in els])
+        self.r_empty = np.array([e.values.get("r_empty", e.values["r"]) for e in els])
+        self.eta = np.array([e.values.get("eta", 1.0) for e in els])
+        self.k = np.array([e.values.get("peukert", 1.0) for e in els])
+        self.rate = np.array([e.values.get("rate", 20 * 3600.0) for e in els])
+        self.varies_r = bool(np.any(self.r_empty != self.r_full))
+        self.curves = []
+        self.notes = []
+        defaulted = [e.name for e in els if "soc" not in e.values]
+        if defaulted:
+            self.notes.append(f"{len(defaulted)} cell(s) start full (no soc= given): {', '.join(defaulted[:5])}{' ...' if len(defaulted) > 5 else ''}")
+        for k, e in enumerate(els):
+            chem = e.values.get("chemistry")
+            mode = e.values.get("curve") or ("chemistry" if chem and ocv_curve(chem) is not None else "flat")
+            if mode == "chemistry":
+                curve = ocv_curve(chem) if chem else None
+                if curve is None:
+                    raise InputError(f"cell {e.name}: no resting-voltage curve for chemistry '{chem}'", span=e.span, hint="use curve=flat, or a chemistry with a curve: lead-acid, agm, gel, lifepo4, nmc")
+                xs, ys, _ = curve
+                scale = self.emf0[k] / np.interp(self.soc0[k], xs, ys)
+                self.curves.append((xs, ys * scale))
+            else:
+                self.curves.append(None)
+        self.flat = all(c is None for c in self.curves)
+        self.n = n
+
+    def emf(self, soc: np.ndarray) -> np.ndarray:
+        if self.flat:
+            return self.emf0
+        out = self.emf0.copy()
+        for k, curve in enumerate(self.curves):
+            if curve is not None:
+                out[k] = np.interp(soc[k], curve[0], curve[1])
+        return out
+
+    def r(self, soc: np.ndarray) -> np.ndarray:
+        if not self.varies_r:
+            return self.r_full
+        return self.r_empty + (self.r_full - self.r_empty) * np.clip(soc, 0.0, 1.0)
+
+    def accepted(self, i: np.ndarray, soc: np.ndarray) -> np.ndarray:
+        """Share of a charging current that is stored: eta, and nothing once the cell is full
+        (overcharge turns to heat and gas)."""
+        return np.where(soc >= 1.0, 0.0, self.eta)
+
+    def dsoc_dt(self, i: np.ndarray, soc: np.ndarray | None = None) -> np.ndarray:
+        """Rate of change of state of charge for passive-sign currents i (charging positive)."""
+        eta = self.eta if soc is None else self.accepted(i, soc)
+        out = np.where(i > 0, eta * i / self.capacity, i / self.capacity)
+        peuk = (i < 0) & (self.k != 1.0)
+        if peuk.any():
+            i_h = self.capacity / self.rate
+            out = np.where(peuk, -(np.abs(i) / self.capacity) * (np.abs(i) / i_h) ** (self.k - 1.0), out)
+        return out
+
+
+class _PhaseSolver:
+    """Solves the circuit of one phase for given cell EMFs and resistances, reusing factors."""
+
+    def __init__(self, net, bt, cells: _Cells, phase: Phase, force_refactor: bool):
+        from ..kinds import KINDS
+
+        self.net, self.cells, self.force = net, cells, force_refactor
+        on = set(phase.on)
+        off = np.zeros(len(bt.names), dtype=bool)
+        for p, el in enumerate(net.elements):
+            if (KINDS[el.kind].is_source and el.kind != "cell") or el.kind == "load":
+                off[p] = el.name not in on
+        is_v = bt.is_voltage & ~off
+        g = np.where(off, 0.0, bt.g)
+        c = np.where(off, 0.0, bt.c)
+        e = np.where(off, 0.0, bt.e)
+        nonlinear = bt.nonlinear & ~off if bt.nonlinear is not None else None
+        self.bt = dataclasses.replace(bt, is_voltage=is_v, g=g, c=c, e=e, nonlinear=nonlinear)
+        self.nonlinear = bool(nonlinear is not None and nonlinear.any())
+        self.pin = self._floating_nodes()
+        self.factor = None
+        self.system = None
+        self.r_used = None
+        self.solves = 0
+        self.factorisations = 0
+
+    def _floating_nodes(self) -> np.ndarray:
+        from ..topology import islands
+
+        labels = islands(self.bt)
+        gl = labels[self.bt.ground]
+        pins = []
+        for lab in np.unique(labels):
+            if lab != gl:
+                pins.append(int(np.flatnonzero(labels == lab)[0]))
+        return np.array(pins, dtype=np.int64)
+
+    def solve(self, emf: np.ndarray, r: np.ndarray):
+        from .mna import assemble, solve_system
+        from .solve import currents
+
+        bt = self.bt
+        pos = self.cells.pos
+        g = bt.g.copy()
+        c = bt.c.copy()
+        g[pos] = 1.0 / r
+        c[pos] = -emf / r
+        model = dataclasses.replace(bt, g=g, c=c)
+        self.solves += 1
+        if self.nonlinear:
+            from .newton import newton_solve
+
+            res = newton_solve(model)
+            self.factorisations += len(res.history) + 1
+            return res.potentials, res.v, res.i, res.bt.g
+        refactor = self.factor is None or self.force or (self.r_used is not None and not np.array_equal(r, self.r_used))
+        if refactor:
+            self.system = assemble(model)
+            self._pin(self.system)
+            self.system_x, self.factor = solve_system(self.system)
+            self.factorisations += 1
+            self.r_used = r.copy()
+            x = self.system_x
+        else:
+            z = _rhs(model, self.system)
+            x = self.factor.solve(z)
+        return (*currents(model, self.system, x, g, c), g)
+
+    def _pin(self, system) -> None:
+        if len(self.pin) == 0:
+            return
+        rows = system.row_of_node[self.pin]
+        rows = rows[rows >= 0]
+        if system.dense:
+            system.A[rows, rows] += 1.0
+        else:
+            from scipy.sparse import csc_matrix
+
+            d = np.zeros(system.size)
+            d[rows] = 1.0
+            from scipy.sparse import diags
+
+            system.A = csc_matrix(system.A + diags(d))
+
+
+def _rhs(model, system) -> np.ndarray:
+    """Right-hand side of the MNA system for new source values (same structure)."""
+    row = system.row_of_node
+    N = system.n_node_rows
+    z = np.zeros(system.size)
+    cur = np.where(model.is_voltage, 0.0, model.c)
+    nz = np.flatnonzero(cur)
+    ra, rb = row[model.a[nz]], row[model.b[nz]]
+    sc = cur[nz]
+    np.subtract.at(z, ra[ra >= 0], sc[ra >= 0])
+    np.add.at(z, rb[rb >= 0], sc[rb >= 0])
+    z[N:] = model.e[system.vbranch]
+    return z
+
+
+def _probe(cond: Condition, net, cells: _Cells, soc, pot, v, i) -> float:
+    if cond.quantity == "soc":
+        if cond.of:
+            idx = []
+            for name in cond.of:
+                if name in net.banks:
+                    idx += [cells.names.index(c) for s in net.banks[name]["strings"] for c in s]
+                else:
+                    idx.append(cells.names.index(name))
+            return float(np.mean(soc[idx]))
+        return float(np.mean(soc))
+    at = cond.at
+    if "," in at:
+        a, b = at.split(",", 1)
+        return float(pot[net.node_index[a]] - pot[net.node_index[b]])
+    if at in net.node_index and not net.has_element(at):
+        return float(pot[net.node_index[at]])
+    k = net.element_position(at)
+    return float(abs(i[k])) if cond.quantity == "amps" else float(v[k])
+
+
+def _crossed(cond: Condition, value: float) -> bool:
+    return value >= cond.threshold if cond.sense == "above" else value <= cond.threshold
+
+
+def run(net, phases: list[Phase] | None = None, *, step: float | None = None, force_refactor: bool = False, progress: bool = False) -> CycleResult:
+    """Run a schedule (the file's phases by default) and return the series and ledger."""
+    from .branches import branch_table
+
+    phases = list(phases if phases is not None else net.phases)
+    if not phases:
+        raise InputError(
+            "the circuit has no phases to run",
+            span=Span(net.files[0] if net.files else "<text>"),
+            hint="add phase statements, e.g.: phase charge on=CHARGER soc_above=95% max=10h",
+        )
+    for ph in phases:
+        ph.check_names(net)
+    bt = branch_table(net)
+    cells = _Cells(net, bt)
+    if cells.n == 0:
+        raise InputError("a cycle needs at least one cell", span=Span(net.files[0] if net.files else "<text>"))
+    t0 = _time.perf_counter()
+    energy = np.zeros(len(net.elements))  # absorbed energy per element, J
+    stored = np.zeros(cells.n)
+    heat_cells = np.zeros(cells.n)
+    coulombic = np.zeros(cells.n)
+    ah_in = np.zeros(cells.n)
+    ah_out = np.zeros(cells.n)
+    term_in = np.zeros(cells.n)  # energy into the cells' terminals while they charge, J
+    term_out = np.zeros(cells.n)  # energy out of their terminals while they discharge, J
+    soc = cells.soc0.copy()
+    t = 0.0
+    times, socs, curs, pots, labels = [], [], [], [], []
+    summary = []
+    circ = {"max_A": 0.0, "time_s": 0.0, "bank": None, "phase": None}
+    bank_strings = {name: [[net.element_position(c) for c in s][-1] for s in b["strings"]] for name, b in net.banks.items() if b["parallel"] > 1}
+    solves = factorisations = 0
+    notes = list(cells.notes)
+    last_print = 0.0
+
+    for idx, ph in enumerate(phases):
+        solver = _PhaseSolver(net, bt, cells, ph, force_refactor)
+        t_start = t
+        limit = ph.duration if ph.duration is not None else (ph.max_time if ph.max_time is not None else DEFAULT_MAX)
+        if ph.duration is None and ph.max_time is None:
+            notes.append(f"phase {ph.label}: no max= given, limited to {DEFAULT_MAX / 3600:g} h")
+        hmax = ph.step or step or DEFAULT_STEP
+        pot, v, i, g = solver.solve(cells.emf(soc), cells.r(soc))
+        reason = "time limit" if ph.duration is None else "duration"
+        for cond in ph.conditions:
+            if _crossed(cond, _probe(cond, net, cells, soc, pot, v, i)):
+                reason = f"{cond.describe()} at the start"
+                limit = 0.0
+        while t - t_start < limit - 1e-9:
+            icell = i[cells.pos]
+            rate = cells.dsoc_dt(icell, soc)
+            dt = min(hmax, limit - (t - t_start))
+            fastest = float(np.abs(rate).max(initial=0.0))
+            if fastest > 0:
+                dt = min(dt, MAX_SOC_STEP / fastest)
+            dt = max(dt, 1e-6)
+            # record the start of the step
+            times.append(t)
+            socs.append(soc.copy())
+            curs.append(icell.copy())
+            pots.append(pot.copy())
+            labels.append(idx)
+            p = v * i
+            new_soc = soc + rate * dt
+            pot2, v2, i2, g2 = solver.solve(cells.emf(new_soc), cells.r(new_soc))
+            # event location: shorten the step to the crossing (Euler states are linear in dt)
+            hit = None
+            for cond in ph.conditions:
+                q0 = _probe(cond, net, cells, soc, pot, v, i)
+                q1 = _probe(cond, net, cells, new_soc, pot2, v2, i2)
+                if _crossed(cond, q1) and not _crossed(cond, q0):
+                    frac = (cond.threshold - q0) / (q1 - q0) if q1 != q0 else 1.0
+                    for _ in range(30):
+                        dt_try = dt * min(max(frac, 0.0), 1.0)
+                        trial = soc + rate * dt_try
+                        pt, vt, it, gt = solver.solve(cells.emf(trial), cells.r(trial))
+                        qt = _probe(cond, net, cells, trial, pt, vt, it)
+                        if abs(dt_try - dt * frac) < EVENT_TOL and abs(qt - cond.threshold) <= 1e-9 * max(1.0, abs(cond.threshold)):
+                            break
+                        # secant on the fraction
+                        if qt == q0:
+                            break
+                        frac = frac * (cond.threshold - q0) / (qt - q0)
+                        if abs(dt * frac - dt_try) < EVENT_TOL:
+                            dt_try = dt * min(max(frac, 0.0), 1.0)
+                            trial = soc + rate * dt_try
+                            pt, vt, it, gt = solver.solve(cells.emf(trial), cells.r(trial))
+                            break
+                    if hit is None or dt_try < hit[0]:
+                        hit = (dt_try, cond, trial, pt, vt, it, gt)
+            if hit is not None:
+                dt, cond, new_soc, pot2, v2, i2, g2 = hit
+                reason = cond.describe()
+            # ledger (left-rectangle rule for every element alike: the ledger closes exactly)
+            energy += p * dt
+            r_now = cells.r(soc)
+            emf_now = cells.emf(soc)
+            chem = emf_now * icell * dt
+            charging = icell > 0
+            accepted = cells.accepted(icell, soc)
+            stored += np.where(charging, accepted * chem, chem)
+            coulombic += np.where(charging, (1 - accepted) * chem, 0.0)
+            heat_cells += icell * icell * r_now * dt
+            pcell = p[cells.pos]
+            term_in += np.maximum(pcell, 0.0) * dt
+            term_out += np.maximum(-pcell, 0.0) * dt
+            ah_in += np.where(charging, icell, 0.0) * dt / 3600.0
+            ah_out += np.where(~charging, -icell, 0.0) * dt / 3600.0
+            for bank, pos in bank_strings.items():
+                si = i[pos]
+                c_now = (np.abs(si).sum() - abs(si.sum())) / 2
+                if c_now > circ["max_A"]:
+                    circ.update(max_A=float(c_now), time_s=t, bank=bank, phase=ph.label)
+            t += dt
+            soc = np.clip(new_soc, 0.0, 1.0)
+            pot, v, i = pot2, v2, i2
+            if progress and sys.stderr.isatty() and _time.perf_counter() - last_print > 0.2:
+                last_print = _time.perf_counter()
+                frac_done = (t - t_start) / limit if limit else 1.0
+                print(f"\r  phase {ph.label}: {frac_done * 100:5.1f} % of {limit / 3600:.3g} h", end="", file=sys.stderr)
+            if hit is not None:
+                break
+            if np.any((soc <= 0.0) & (cells.dsoc_dt(i[cells.pos], soc) < 0)):
+                reason = "a cell reached 0 % state of charge"
+                notes.append(f"phase {ph.label}: stopped when a cell was empty")
+                break
+        if progress and sys.stderr.isatty():
+            print("\r" + " " * 60 + "\r", end="", file=sys.stderr)
+        solves += solver.solves
+        factorisations += solver.factorisations
+        summary.append(
+            {
+                "phase": ph.label,
+                "start_s": t_start,
+                "end_s": t,
+                "duration_s": t - t_start,
+                "ended_by": reason,
+                "mean_soc_end": float(np.mean(soc)),
+            }
+        )
+    # final sample
+    times.append(t)
+    socs.append(soc.copy())
+    curs.append(i[cells.pos].copy())
+    pots.append(pot.copy())
+    labels.append(len(phases) - 1)
+
+    ledger = _ledger(net, energy, cells, stored, heat_cells, coulombic, term_in, term_out, soc)
+    throughput = {n: {"charged_Ah": float(a), "discharged_Ah": float(b)} for n, a, b in zip(cells.names, ah_in, ah_out)}
+    return CycleResult(
+        netlist=net,
+        times=np.array(times),
+        phase_of_sample=np.array(labels),
+        cell_names=cells.names,
+        soc=np.array(socs),
+        cell_current=np.array(curs),
+        node_names=list(net.node_index),
+        potentials=np.array(pots),
+        phases=summary,
+        ledger=ledger,
+        throughput=throughput,
+        circulating=circ,
+        solves=solves,
+        factorisations=factorisations,
+        wall_s=_time.perf_counter() - t0,
+        notes=notes,
+    )
+
+
+_CATEGORY = {
+    "cable": "heat in cables",
+    "link": "heat in links and straps",
+    "fuse": "heat in fuses",
+    "switch": "heat in switches",
+    "resistor": "heat in resistors",
+    "diode": "heat in diodes",
+    "load": "delivered to loads",
+}
+
+
+def _ledger(net, energy, cells: _Cells, stored, heat_cells, coulombic, term_in, term_out, soc) -> dict:
+    """Energy per category and per element (J and Wh), the closure of the balance, and the
+    round-trip figures."""
+    from ..kinds import KINDS
+
+    cats: dict[str, float] = {}
+    per_element = {}
+    for el, e_j in zip(net.elements, energy):
+        if el.kind == "cell":
+            continue
+        if KINDS[el.kind].is_source:
+            cat, value = "put in by chargers and sources", -e_j  # delivered energy counted positive
+        else:
+            cat, value = _CATEGORY.get(el.kind, f"absorbed by {el.kind}s"), e_j
+        cats[cat] = cats.get(cat, 0.0) + float(value)
+        per_element[el.name] = {"category": cat, "J": float(value), "Wh": float(value) / 3600.0}
+    for n, s_j, h_j, c_j in zip(cells.names, stored, heat_cells, coulombic):
+        per_element[n] = {
+            "category": "cells",
+            "stored_J": float(s_j),
+            "heat_J": float(h_j),
+            "not_stored_J": float(c_j),
+            "stored_Wh": float(s_j) / 3600.0,
+            "heat_Wh": float(h_j) / 3600.0,
+        }
+    cats["stored in cells (net)"] = float(stored.sum())
+    cats["heat in cells' internal resistance"] = float(heat_cells.sum())
+    if coulombic.sum():
+        cats["charge not stored (coulombic loss, overcharge)"] = float(coulombic.sum())
+    supplied = cats.get("put in by chargers and sources", 0.0)
+    used = sum(v for k, v in cats.items() if k != "put in by chargers and sources")
+    scale = sum(abs(v) for v in cats.values()) or 1.0
+    loads = cats.get("delivered to loads", 0.0)
+    e_in, e_out = float(term_in.sum()), float(term_out.sum())
+    return {
+        "categories_J": cats,
+        "categories_Wh": {k: v / 3600.0 for k, v in cats.items()},
+        "elements": per_element,
+        # sources give what heat, loads and the cells' net store take: (in - used) / everything
+        "closure_relative": float((supplied - used) / scale),
+        "round_trip": {
+            "cells_terminal_in_Wh": e_in / 3600.0,
+            "cells_terminal_out_Wh": e_out / 3600.0,
+            "cells_round_trip": (e_out / e_in) if e_in > 0 else None,
+            "loads_over_supplied": (loads / supplied) if supplied > 0 else None,
+            "mean_soc_change": float(np.mean(soc - cells.soc0)),
+        },
+    }
