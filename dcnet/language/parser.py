@@ -477,9 +477,12 @@ def parse_statements(text: str, file: str = "<text>") -> list[Statement]:
     try:
         return _parser().parse(text, start="file")
     except UnexpectedInput as exc:
-        raise _syntax_error(exc, text, file) from None
+        err = _syntax_error(exc, text, file)
     except VisitError as exc:  # pragma: no cover - transformer bugs surface as ours
-        raise InputError(f"could not read the file: {exc.orig_exc}", span=Span(file)) from None
+        err = InputError(f"could not read the file: {exc.orig_exc}", span=Span(file))
+    # raised outside the except block: the parser's own exception (which holds the parser)
+    # must not ride along as context, so the error stays small and pickles anywhere
+    raise err
 
 
 @lru_cache(maxsize=65536)
@@ -498,24 +501,28 @@ def parse_value(raw: str, span: Span, source_line: str | None = None):
         err = _syntax_error(exc, raw, span.file, span.line - 1, span.column - 1)
         err.source_line = source_line
         err.message = err.message.replace("the end of the file", "the end of the value")
-        raise err from None
     except (VisitError, _UnitError, _NumberError) as exc:
-        orig = getattr(exc, "orig_exc", exc)
-        if isinstance(orig, _NumberError):
-            col = raw.find(orig.text)
-            raise ValueRangeError(
-                f"the number {orig.text} is too large to be a physical quantity",
-                span=Span(span.file, span.line, span.column + max(col, 0), len(orig.text)),
-                source_line=source_line,
-            ) from None
-        if isinstance(orig, _UnitError):
-            suggestion = suggest_unit(orig.unit)
-            # locate the unit inside the raw value
-            col = raw.find(orig.unit)
-            err_span = Span(span.file, span.line, span.column + max(col, 0), len(orig.unit))
-            hint = f"did you mean '{suggestion}'?" if suggestion else "known units include V, A, Ohm, mOhm, W, Ah, m, mm2, degC, %"
-            raise UnknownNameError(f"unknown unit '{orig.unit}'", span=err_span, hint=hint, source_line=source_line) from None
-        raise
+        err = _value_error(getattr(exc, "orig_exc", exc), raw, span, source_line)
+        if err is None:
+            raise
+    raise err  # outside the except block, for the same reason as above
+
+
+def _value_error(orig, raw: str, span: Span, source_line: str | None) -> DcnetError | None:
+    if isinstance(orig, _NumberError):
+        col = raw.find(orig.text)
+        return ValueRangeError(
+            f"the number {orig.text} is too large to be a physical quantity",
+            span=Span(span.file, span.line, span.column + max(col, 0), len(orig.text)),
+            source_line=source_line,
+        )
+    if isinstance(orig, _UnitError):
+        suggestion = suggest_unit(orig.unit)
+        col = raw.find(orig.unit)  # locate the unit inside the raw value
+        err_span = Span(span.file, span.line, span.column + max(col, 0), len(orig.unit))
+        hint = f"did you mean '{suggestion}'?" if suggestion else "known units include V, A, Ohm, mOhm, W, Ah, m, mm2, degC, %"
+        return UnknownNameError(f"unknown unit '{orig.unit}'", span=err_span, hint=hint, source_line=source_line)
+    return None
 
 
 def suggest(word: str, choices) -> str | None:
