@@ -14,7 +14,7 @@ from pathlib import Path
 
 from .errors import InputError
 
-__all__ = ["expand_inputs", "atomic_write_text", "CIRCUIT_SUFFIX"]
+__all__ = ["expand_inputs", "atomic_write_text", "atomic_write_bytes", "CIRCUIT_SUFFIX"]
 
 CIRCUIT_SUFFIX = ".dcn"
 
@@ -48,6 +48,21 @@ def atomic_write_text(path: str | os.PathLike, text: str, protect: list[str] | t
 
     Raises :class:`InputError` if ``path`` is one of the ``protect`` files (the inputs).
     """
+    atomic_write_bytes(path, text.encode("utf-8"), protect)
+
+
+def _mode_for(path: Path) -> int:
+    """The file mode a plain write would give: the old file's, else 0666 less the umask."""
+    try:
+        return path.stat().st_mode & 0o777
+    except OSError:
+        mask = os.umask(0)
+        os.umask(mask)
+        return 0o666 & ~mask
+
+
+def atomic_write_bytes(path: str | os.PathLike, data: bytes, protect: list[str] | tuple[str, ...] = ()) -> None:
+    """Write ``data`` to ``path`` through a temporary file and a rename (as :func:`atomic_write_text`)."""
     target = Path(path)
     resolved = target.resolve()
     for p in protect:
@@ -58,10 +73,11 @@ def atomic_write_text(path: str | os.PathLike, text: str, protect: list[str] | t
         raise InputError(f"the folder {folder} does not exist")
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
     try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
+        os.chmod(tmp, _mode_for(resolved))
         os.replace(tmp, resolved)
     except BaseException:
         try:

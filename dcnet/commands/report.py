@@ -1,0 +1,90 @@
+"""``dcnet report``: one circuit as a self-contained HTML report, or its network picture (SVG, PNG)."""
+
+from __future__ import annotations
+
+import sys
+
+from .common import EXIT_BAD_INPUT, Output, add_input_options, options, status
+
+FORMATS = ("html", "svg", "png")
+
+
+def add_parser(sub) -> None:
+    c = sub.add_parser(
+        "report",
+        help="solve and check one circuit and write a self-contained HTML report (or its network picture as SVG or PNG)",
+        description="Solve and check one circuit file and write a report people can read and print: a summary, the network "
+        "picture, the checks with their sources, fault currents, the power ledger, node and element tables, the safety "
+        "caution and the circuit file with line numbers. Exit 1 if a check fails, as 'dcnet check'.",
+    )
+    c.add_argument("file", metavar="FILE", help="circuit file (.dcn); - reads standard input")
+    c.add_argument(
+        "-o",
+        "--output",
+        metavar="OUT",
+        help="write to this file (never over an input); the format follows its suffix (.html, .svg, .png)",
+    )
+    c.add_argument(
+        "--format", choices=FORMATS, help="html (the report, default), svg or png (the network picture alone)"
+    )
+    c.add_argument("--title", metavar="TEXT", help="title for the report or picture (default: the circuit's title)")
+    add_input_options(c)
+    c.set_defaults(run=run)
+
+
+def _format(args) -> str:
+    if args.format:
+        return args.format
+    if args.output:
+        suffix = args.output.rsplit(".", 1)[-1].lower() if "." in args.output else ""
+        if suffix in ("svg", "png"):
+            return suffix
+    return "html"
+
+
+def run(args) -> int:
+    from ..errors import InputError
+    from ..language import load, parse
+
+    fmt = _format(args)
+    if fmt == "png" and not args.output:
+        raise InputError("PNG output needs a file name", hint="add -o picture.png")
+    opts = options(args)
+    if args.file == "-":
+        text = sys.stdin.read()
+        net = parse(text, "<stdin>", opts)
+        sources = [("<stdin>", text)]
+    else:
+        net = load(args.file, opts)
+        sources = None
+    sol = net.solve()
+    for w in sol.warnings:
+        print(f"dcnet: warning: {args.file}: {w}", file=sys.stderr)
+    inputs = [args.file] + [f for f in net.files if f != args.file]
+    if fmt == "html":
+        from ..report.html import render
+
+        out = Output()
+        out.write(render(sol, file=args.file, sources=sources, title=args.title))
+        out.finish(args, inputs)
+    else:
+        from ..report import picture
+
+        try:
+            sc = picture.scene(sol, args.title)
+        except picture.PictureTooLarge as exc:
+            print(f"dcnet: {exc}", file=sys.stderr)
+            return EXIT_BAD_INPUT
+        if fmt == "svg":
+            out = Output()
+            out.write(picture.svg_of_scene(sc))
+            out.finish(args, inputs)
+        else:
+            from ..files import atomic_write_bytes
+
+            atomic_write_bytes(args.output, picture.png_bytes(sc), protect=inputs)
+    if args.output:
+        print(
+            f"dcnet: wrote {args.output}" + (" (a check failed: see the report)" if sol.failed else ""), file=sys.stderr
+        )
+    return status(sol)
