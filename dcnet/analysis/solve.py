@@ -198,7 +198,7 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
         pot, v, i = newton.potentials, newton.v, newton.i
         balance = verify(model, v, i, pot)
         warnings += _second_operating_points(net, model, v)
-        warnings += _dropped_out(model, newton.modes)
+        warnings += _dropped_out(model, newton.modes, v)
         sol = _finish(net, model, system, factor, x, pot, v, i, balance, warnings, refine=False)
         sol.newton_history = newton.history
         return sol
@@ -249,7 +249,7 @@ def _finish(net, bt, system, factor, x, pot, v, i, balance, warnings, *, refine:
     return sol
 
 
-def _dropped_out(model: BranchTable, modes: dict) -> list[str]:
+def _dropped_out(model: BranchTable, modes: dict, v: np.ndarray) -> list[str]:
     from ..kinds.load import DROPPED
 
     if "load" not in modes or "load" not in model.groups:
@@ -258,8 +258,8 @@ def _dropped_out(model: BranchTable, modes: dict) -> list[str]:
     cp = np.flatnonzero(~np.isnan(cols["power"]))
     out = []
     for k, mode in zip(cp, modes["load"]):
-        if mode == DROPPED and np.isnan(cols["vmin"][k]):
-            out.append(f"load {model.names[pos[k]]} has no voltage across it and cannot run")
+        if mode == DROPPED and (np.isnan(cols["vmin"][k]) or v[pos[k]] <= 0):
+            out.append(f"load {model.names[pos[k]]} sees no voltage, or a reversed one, and cannot run (check its polarity)")
         elif mode == DROPPED:
             out.append(
                 f"load {model.names[pos[k]]} dropped out: it cannot draw {cols['power'][k]:.4g} W without its voltage "

@@ -13,7 +13,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..units import CURRENT, POWER, RESISTANCE, VOLTAGE
-from .base import Kind, Prop, admittance, positive
+from .base import Kind, Prop, admittance, positive, present, safe_inverse
 
 ON, DROPPED = 0, 1
 
@@ -31,11 +31,10 @@ class Load(Kind):
 
     def branches(self, cols):
         r, cur, power = cols["r"], cols["current"], cols["power"]
-        resistive = ~np.isnan(r)
-        g = np.zeros(len(r))
-        np.divide(1.0, r, out=g, where=resistive)
+        resistive = present(r)
+        g = safe_inverse(r, resistive)
         # constant-power loads start switched off; the Newton solver linearises them
-        return admittance(g, np.where(resistive | ~np.isnan(power), 0.0, cur))
+        return admittance(g, np.where(resistive | present(power), 0.0, cur))
 
     def nonlinear_mask(self, cols):
         return ~np.isnan(cols["power"])
@@ -44,6 +43,9 @@ class Load(Kind):
         P, vmin = cols["power"], cols["vmin"]
         mode = mode.copy()
         drop = (mode == ON) & ~np.isnan(vmin) & (v < vmin)
+        # at the first linearisation (prev = 0) a load that sees no or reverse voltage with
+        # every constant-power load off is wired the wrong way round: it cannot run
+        drop |= (mode == ON) & (prev == 0) & (v <= 0)
         mode[drop] = DROPPED
         # never linearise at or below zero volts: a constant-power load has no such operating point
         floor = np.maximum(np.abs(prev), 1e-6) * 0.5
