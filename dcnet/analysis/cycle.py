@@ -198,6 +198,7 @@ class _Cells:
         self.rate = np.array([e.values.get("rate", 20 * 3600.0) for e in els])
         self.varies_r = bool(np.any(self.r_empty != self.r_full))
         self.curves = []
+        self.curve_groups: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = {}
         self.notes = []
         defaulted = [e.name for e in els if "soc" not in e.values]
         if defaulted:
@@ -212,8 +213,13 @@ class _Cells:
                 xs, ys, _ = curve
                 scale = self.emf0[k] / np.interp(self.soc0[k], xs, ys)
                 self.curves.append((xs, ys * scale))
+                key = chem.strip().lower()
+                members, scales, _, _ = self.curve_groups.get(key, ([], [], xs, ys))
+                self.curve_groups[key] = (members + [k], scales + [scale], xs, ys)
             else:
                 self.curves.append(None)
+        # per chemistry: cell positions, their scale factors, and the shared curve (vectorised EMF)
+        self.curve_groups = {key: (np.array(m), np.array(sc), xs, ys) for key, (m, sc, xs, ys) in self.curve_groups.items()}
         self.flat = all(c is None for c in self.curves)
         self.n = n
 
@@ -221,9 +227,8 @@ class _Cells:
         if self.flat:
             return self.emf0
         out = self.emf0.copy()
-        for k, curve in enumerate(self.curves):
-            if curve is not None:
-                out[k] = np.interp(soc[k], curve[0], curve[1])
+        for members, scales, xs, ys in self.curve_groups.values():
+            out[members] = scales * np.interp(soc[members], xs, ys)
         return out
 
     def r(self, soc: np.ndarray) -> np.ndarray:
