@@ -58,6 +58,9 @@ class Options:
     allow_outside: bool = False  # includes outside the top file's folder tree
     #: solve every bank with its main leads at this tap position (same, opposite, centre), whatever the file says
     tap_override: str | None = None
+    #: let values to use instead of the file's (SI floats by qualified name): one point of a study
+    #: (dcnet sweep / spread) when it re-reads the file
+    let_values: dict[str, float] | None = None
 
 
 @dataclass
@@ -140,11 +143,16 @@ def parse(text: str, file: str = "<text>", options: Options | None = None, *, ba
     return st.net
 
 
-def load(path: str | os.PathLike, options: Options | None = None) -> Netlist:
-    """Read and elaborate a circuit file (and the files it includes)."""
+def load(path: str | os.PathLike, options: Options | None = None, *, text: str | None = None) -> Netlist:
+    """Read and elaborate a circuit file (and the files it includes).
+
+    ``text``, when given, is the file's content already read (a cluster worker gets it from
+    the client); the file is then treated exactly as if it had been read from ``path``.
+    """
     options = options or Options()
     p = Path(path)
-    text = _read(p, options, None)
+    if text is None:
+        text = _read(p, options, None)
     root = p.resolve().parent
     st = _State(Netlist(), options, root)
     st.net.files.append(str(path))
@@ -386,8 +394,10 @@ def _let(st: _State, s: Statement, file: str) -> None:
                 f"the tolerance of '{name}' is {dim_name(t.dim)}, expected a percentage or {dim_name(q.dim)}",
                 span=span,
             )
-    target[name] = q
     qualified = scope.prefix + name
+    if st.options.let_values and qualified in st.options.let_values:
+        q = Quantity(float(st.options.let_values[qualified]), q.dim)  # a study's point
+    target[name] = q
     st.net.values[qualified] = (q.value, q.dim, tol)
     st.net.exprs[("let", qualified)] = tree
 
@@ -426,6 +436,16 @@ def _eval(st: _State, tree, span: Span) -> Quantity:
         ) from None
 
 
+def _no_such_property(owner: str, takes: str, known, p: Prop, file: str, extra=()) -> UnknownNameError:
+    """'OWNER has no property KEY', pointing at the key, with the nearest known one."""
+    near = suggest(p.key, list(known) + list(extra))
+    return UnknownNameError(
+        f"{owner} has no property '{p.key}'",
+        span=Span(file, p.line, p.column, len(p.key)),
+        hint=(f"did you mean '{near}'? " if near else "") + f"{takes}: " + ", ".join(known),
+    )
+
+
 def _value_span(file: str, p: Prop) -> Span:
     return Span(file, p.line, p.value_column, len(p.raw))
 
@@ -433,13 +453,7 @@ def _value_span(file: str, p: Prop) -> Span:
 def _resolve_prop(st: _State, kind: Kind, p: Prop, file: str, owner: str) -> Any:
     spec = kind.props.get(p.key)
     if spec is None:
-        near = suggest(p.key, list(kind.props) + ["part"])
-        known = ", ".join(kind.props)
-        raise UnknownNameError(
-            f"a {kind.name} has no property '{p.key}'",
-            span=Span(file, p.line, p.column, len(p.key)),
-            hint=(f"did you mean '{near}'? " if near else "") + f"a {kind.name} takes: {known}",
-        )
+        raise _no_such_property(f"a {kind.name}", f"a {kind.name} takes", kind.props, p, file, extra=("part",))
     span = _value_span(file, p)
     if spec.form == "word":
         word = p.raw.strip()
@@ -694,12 +708,7 @@ def _limit(st: _State, s: Statement, file: str) -> None:
     for p in s.props:
         form = props.get(p.key)
         if form is None:
-            near = suggest(p.key, props)
-            raise UnknownNameError(
-                f"limit {rule} has no property '{p.key}'",
-                span=Span(file, p.line, p.column, len(p.key)),
-                hint=(f"did you mean '{near}'? " if near else "") + "it takes: " + ", ".join(props),
-            )
+            raise _no_such_property(f"limit {rule}", "it takes", props, p, file)
         scope = st.scope
         if form == "quantity":
             values[p.key] = _quantity(st, p.raw, _value_span(file, p), file)
@@ -721,12 +730,7 @@ def _phase(st: _State, s: Statement, file: str) -> None:
     for p in s.props:
         spec = PHASE_PROPS.get(p.key)
         if spec is None:
-            near = suggest(p.key, PHASE_PROPS)
-            raise UnknownNameError(
-                f"a phase has no property '{p.key}'",
-                span=Span(file, p.line, p.column, len(p.key)),
-                hint=(f"did you mean '{near}'? " if near else "") + "a phase takes: " + ", ".join(PHASE_PROPS),
-            )
+            raise _no_such_property("a phase", "a phase takes", PHASE_PROPS, p, file)
         if p.key in values:
             raise InputError(f"property '{p.key}' is given twice", span=Span(file, p.line, p.column, len(p.key)))
         span = _value_span(file, p)
