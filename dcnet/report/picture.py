@@ -447,9 +447,6 @@ def _stress(
             ratio = d / dist
             nx = (w * (x[None, :] + ratio * dxm)).sum(axis=1) / wsum
             ny = (w * (yy[None, :] + ratio * dym)).sum(axis=1) / wsum
-            for xa, xb in keep_out:  # nothing outside a bank inside its frame
-                inside = free & (nx > xa) & (nx < xb)
-                nx = np.where(inside, np.where(nx - xa < xb - nx, xa, xb), nx)
             x = np.where(free, nx, x)
             for ia, ib in upright:  # hold vertical runs upright
                 if free[ia] and free[ib]:
@@ -470,6 +467,9 @@ def _stress(
                         x[ib] += push
                     elif free[ia]:
                         x[ia] -= push
+            for xa, xb in keep_out:  # nothing outside a bank inside its frame
+                inside = free & (x > xa) & (x < xb)
+                x = np.where(inside, np.where(x - xa < xb - x, xa, xb), x)
             yy = np.where(movable_y, np.clip(ny, lo, hi), yy)
             project(x, yy)
         dist = np.sqrt((x[:, None] - x[None, :]) ** 2 + (yy[:, None] - yy[None, :]) ** 2)
