@@ -53,6 +53,8 @@ def triplets(bt, g=None, c=None, e=None):
 
     ``g``, ``c``, ``e`` default to the branch table's and may be replaced (as
     nonlinear companion models and studies do) without touching the topology.
+    They may be object arrays of sympy expressions (symbolic formulas): the triplets
+    then hold those expressions.
     """
     g = bt.g if g is None else g
     c = bt.c if c is None else c
@@ -64,7 +66,7 @@ def triplets(bt, g=None, c=None, e=None):
     N = n - 1
     ra, rb = row[bt.a], row[bt.b]
 
-    adm = ~bt.is_voltage & (g != 0)
+    adm = ~bt.is_voltage & np.asarray(g != 0, dtype=bool)  # (object arrays compare entry by entry)
     pa, pb, pg = ra[adm], rb[adm], g[adm]
     vb = np.flatnonzero(bt.solved_voltage)
     k = np.arange(N, N + len(vb), dtype=np.int64)
@@ -76,9 +78,10 @@ def triplets(bt, g=None, c=None, e=None):
     keep = (I >= 0) & (J >= 0)
     I, J, V = I[keep], J[keep], V[keep]
 
-    z = np.zeros(N + len(vb))
+    symbolic = object in (np.asarray(c).dtype, np.asarray(e).dtype)  # sympy entries (analysis/symbolic.py)
+    z = np.zeros(N + len(vb), dtype=object if symbolic else float)
     cur = np.where(bt.is_voltage, 0.0, c)
-    nz = cur != 0
+    nz = np.asarray(cur != 0, dtype=bool)
     if nz.any():
         sa, sb, sc = ra[nz], rb[nz], cur[nz]
         np.subtract.at(z, sa[sa >= 0], sc[sa >= 0])

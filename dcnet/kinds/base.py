@@ -157,7 +157,8 @@ class Kind:
 def admittance(g: np.ndarray, c: Any = 0.0) -> Branches:
     """Admittance-form branches ``i = g*v + c`` for all elements of a kind."""
     g = np.asarray(g)
-    c = np.broadcast_to(np.asarray(c, dtype=g.dtype), g.shape).copy()
+    dtype = object if _is_object(np.asarray(c)) else g.dtype  # symbolic c beside numeric g
+    c = np.broadcast_to(np.asarray(c, dtype=dtype), g.shape).copy()
     return Branches(is_voltage=np.zeros(g.shape, dtype=bool), g=g, c=c, e=np.zeros(g.shape, dtype=g.dtype))
 
 
@@ -176,3 +177,31 @@ def safe_inverse(r: np.ndarray, use: np.ndarray) -> np.ndarray:
     out = np.zeros(len(r))
     np.divide(1.0, r, out=out, where=use)
     return out
+
+
+def resistive_mask(r: np.ndarray) -> np.ndarray:
+    """True where a resistance is given and positive; absent (NaN) or zero means an ideal connection.
+
+    Symbolic (object) arrays are decided entry by entry; an entry whose sign sympy cannot decide
+    counts as resistive. The symbolic layer (analysis/symbolic.py) takes the structure from the
+    numeric netlist and refuses a symbolic model that disagrees with it.
+    """
+    if _is_object(r):
+        return np.array([_positive(x) for x in r], dtype=bool)
+    return r > 0
+
+
+def present(x: np.ndarray) -> np.ndarray:
+    """True where an optional property is given (not NaN); also for symbolic (object) arrays."""
+    if _is_object(x):
+        return np.array([not (isinstance(v, float) and v != v) for v in x], dtype=bool)
+    return ~np.isnan(x)
+
+
+def _positive(x: Any) -> bool:
+    if isinstance(x, float) and x != x:
+        return False
+    try:
+        return bool(x > 0)
+    except TypeError:  # a symbolic value of undecided sign
+        return True

@@ -154,7 +154,7 @@ class Cable(Kind):
         return values
 
     def branches(self, cols):
-        return admittance(1.0 / cols["r"])
+        return admittance(1 / cols["r"])
 
     def extras(self, cols, v, i, ctx):
         ref = ctx.get("system_voltage", 0.0)

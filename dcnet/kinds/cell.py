@@ -31,7 +31,7 @@ class Cell(Kind):
         return values
 
     def branches(self, cols):
-        g = 1.0 / cols["r"]
+        g = 1 / cols["r"]
         return admittance(g, -cols["emf"] * g)
 
     def extras(self, cols, v, i, ctx):

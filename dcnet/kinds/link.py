@@ -5,12 +5,12 @@ from __future__ import annotations
 import numpy as np
 
 from ..units import RESISTANCE
-from .base import Kind, Prop, mixed, nonnegative, safe_inverse
+from .base import Kind, Prop, mixed, nonnegative, resistive_mask, safe_inverse
 
 
 def resistive_or_ideal(r: np.ndarray):
     """Branches for kinds that are a resistance, or an ideal connection when ``r`` is absent or zero."""
-    ideal = ~(r > 0)  # NaN (absent) and 0 are ideal
+    ideal = ~resistive_mask(r)  # NaN (absent) and 0 are ideal
     n = len(r)
     return mixed(ideal, safe_inverse(r, ~ideal), np.zeros(n), np.zeros(n))
 

@@ -8,7 +8,7 @@ from .base import Kind, Prop, admittance, positive
 
 class Resistor(Kind):
     def branches(self, cols):
-        return admittance(1.0 / cols["r"])
+        return admittance(1 / cols["r"])
 
 
 KIND = Resistor(

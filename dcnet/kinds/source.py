@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..units import CURRENT, RESISTANCE, VOLTAGE
-from .base import Kind, Prop, mixed, nonnegative, positive, safe_inverse
+from .base import Kind, Prop, mixed, nonnegative, positive, resistive_mask, safe_inverse
 
 HOLD, LIMIT = 0, 1
 
@@ -20,7 +20,7 @@ HOLD, LIMIT = 0, 1
 class Source(Kind):
     def branches(self, cols):
         r, emf = cols["r"], cols["emf"]
-        ideal = ~(r > 0)
+        ideal = ~resistive_mask(r)
         g = safe_inverse(r, ~ideal)
         return mixed(ideal, g, -emf * g, np.where(ideal, emf, 0.0))
 
