@@ -155,6 +155,35 @@ class CycleResult:
     wall_s: float
     notes: list[str]
 
+    def report_section(self) -> dict:
+        """The cycle's section of the HTML report (see dcnet.report.html)."""
+        led = self.ledger
+        rt = led["round_trip"]
+        summary = [
+            ("phases", ", ".join(f"{p['phase']} ({p['duration_s'] / 3600:.2f} h, {p['ended_by']})" for p in self.phases)),
+            ("ledger closure", f"{abs(led['closure_relative']) * 100:.2g} % of the energy moved"),
+        ]
+        if rt["cells_round_trip"] is not None and abs(rt["mean_soc_change"]) < 0.01:
+            summary.append(("round trip at the cells' terminals", f"{rt['cells_round_trip'] * 100:.1f} %"))
+        if self.circulating["bank"]:
+            c = self.circulating
+            summary.append(("largest circulating current", f"{c['max_A']:.4g} A in bank {c['bank']} at {c['time_s'] / 3600:.2f} h ({c['phase']})"))
+        rows = [[k, f"{v / 3600:.4g}", f"{v:.4g}"] for k, v in led["categories_J"].items()]
+        hours = (self.times / 3600.0).tolist()
+        step = max(1, len(hours) // 400)  # keep the inline plots small
+        soc_series = [{"name": n, "x": hours[::step], "y": (self.soc[::step, k] * 100).tolist()} for k, n in enumerate(self.cell_names[:24])]
+        cur_series = [{"name": n, "x": hours[::step], "y": (-self.cell_current[::step, k]).tolist()} for k, n in enumerate(self.cell_names[:24])]
+        return {
+            "title": "Charge and discharge cycle",
+            "summary": summary,
+            "tables": [{"caption": "Energy ledger", "columns": ["energy", "Wh", "J"], "rows": rows, "numeric": [1, 2]}],
+            "plots": [
+                {"title": "State of charge", "x_label": "time (h)", "y_label": "%", "series": soc_series},
+                {"title": "Cell currents (discharge positive)", "x_label": "time (h)", "y_label": "A", "series": cur_series},
+            ],
+            "notes": list(self.notes),
+        }
+
     def to_dict(self) -> dict:
         return {
             "title": self.netlist.title,

@@ -28,6 +28,8 @@ def add_parser(sub) -> None:
         "--format", choices=FORMATS, help="html (the report, default), svg or png (the network picture alone)"
     )
     c.add_argument("--title", metavar="TEXT", help="title for the report or picture (default: the circuit's title)")
+    c.add_argument("--cycle", action="store_true", help="also run the file's charge/discharge phases and add the cycle section")
+    c.add_argument("--step", default="60s", metavar="TIME", help="longest time step of the cycle (default 60s)")
     add_input_options(c)
     c.set_defaults(run=run)
 
@@ -64,8 +66,14 @@ def run(args) -> int:
     if fmt == "html":
         from ..report.html import render
 
+        cycle = None
+        if args.cycle:
+            from ..analysis.cycle import run as run_cycle
+            from .cycle import _seconds
+
+            cycle = run_cycle(net, step=_seconds(args.step), progress=True)
         out = Output()
-        out.write(render(sol, file=args.file, sources=sources, title=args.title))
+        out.write(render(sol, file=args.file, sources=sources, title=args.title, cycle=cycle))
         out.finish(args, inputs)
     else:
         from ..report import picture

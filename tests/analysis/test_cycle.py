@@ -136,3 +136,12 @@ def test_cycle_command(tmp_path, capsys):
     assert series.read_text().splitlines()[0].startswith("time_s,phase,soc:A,soc:B")
     assert png.read_bytes()[:4] == b"\x89PNG"
     assert main(["cycle", str(ROOT / "circuits" / "cabin-cycle.dcn"), "--step", "5V"]) == 2
+
+
+def test_report_includes_the_cycle(tmp_path):
+    from dcnet.cli import main
+
+    out = tmp_path / "r.html"
+    assert main(["report", str(ROOT / "circuits" / "cabin-cycle.dcn"), "--cycle", "--step", "10min", "-o", str(out)]) == 0
+    page = out.read_text()
+    assert "Charge and discharge cycle" in page and "Energy ledger" in page
