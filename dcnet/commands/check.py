@@ -12,10 +12,16 @@ from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options,
 def add_parser(sub) -> None:
     c = sub.add_parser("check", help="solve and check circuit files: a verdict table, worst first (exit 1 if any check fails)")
     c.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn), folders or patterns; - reads standard input")
-    c.add_argument("--format", choices=("table", "json", "csv", "markdown"), default="table", help="output format (default: table)")
+    c.add_argument(
+        "--format", choices=("table", "json", "csv", "markdown", "jsonl"), default="table",
+        help="output format (default: table); several files: a summary row per file (jsonl: one JSON line per file)",
+    )
     c.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input)")
     c.add_argument("--all", action="store_true", help="list passing checks too (default: all of them for one file)")
     add_input_options(c)
+    from ..parallel import add_options
+
+    add_options(c)  # several files: --jobs, --cluster
     c.set_defaults(run=run)
 
 
@@ -27,23 +33,37 @@ def run(args) -> int:
     files = expand_inputs(args.files)
     out = Output()
     worst = EXIT_OK
-    records = []
     counts = {"passed": 0, "failed": 0, "refused": 0}
-    for path in files:
-        sol, err = solve_one(path, opts)
-        if err is not None:
-            print(err.render(), file=sys.stderr)
+    if len(files) > 1 or args.format == "jsonl":
+        from ..folders import run_files
+
+        records = run_files(files, opts, mode="check", jobs=args.jobs, cluster=args.cluster)
+    else:
+        from ..folders import solve_record
+
+        records = [solve_record(files[0], opts, mode="check")]
+    for rec in records:
+        counts[rec["status"]] += 1
+        if rec["status"] == "refused":
+            print(rec["message"], file=sys.stderr)
             worst = EXIT_BAD_INPUT
-            counts["refused"] += 1
-            records.append({"file": path, "status": "refused", "error": str(err), "checks": []})
+            rec["checks"] = []
             continue
-        code = status(sol)
-        worst = max(worst, code)
-        counts["failed" if code else "passed"] += 1
-        records.append({"file": path, "status": "failed" if code else "passed", "checks": sol.checks, "title": sol.netlist.title})
-        for w in sol.warnings:
-            print(f"dcnet: warning: {path}: {w}", file=sys.stderr)
+        worst = max(worst, 1 if rec["status"] == "failed" else EXIT_OK)
+        for w in rec["warnings"]:
+            print(f"dcnet: warning: {rec['file']}: {w}", file=sys.stderr)
+    if args.format == "jsonl":
+        for rec in records:
+            out.write(json.dumps({k: v for k, v in rec.items() if k != "message"}) + "\n")
+        print(f"{len(files)} files: {counts['passed']} passed every check, {counts['failed']} failed a check, {counts['refused']} refused", file=sys.stderr)
+        out.finish(args, files)
+        return worst
+    if len(files) > 1 and args.format in ("table", "csv") and not args.all:
+        _summary(records, counts, args.format, out)
+        out.finish(args, files)
+        return worst
     if args.format == "json":
+        records = [{k: v for k, v in r.items() if k != "message"} for r in records]
         out.write(json.dumps(records[0] if len(records) == 1 else {"files": records, "summary": counts}, indent=2) + "\n")
     elif args.format == "csv":
         import csv
@@ -76,3 +96,36 @@ def run(args) -> int:
 
 
 # ----------------------------------------------------------------- layouts
+
+
+def _summary(records, counts, fmt, out) -> None:
+    """Several files: one row per file (its verdict, how many checks failed, the worst check)."""
+    from ..report import text as rt
+
+    def worst_text(r):
+        w = r.get("worst_check")
+        if not w:
+            return r.get("error", "")
+        value = "unlimited" if w["value"] is None else rt.si(w["value"], w["unit"])
+        limit = "-" if w["limit"] is None else rt.si(w["limit"], w["unit"])
+        return f"{w['rule']} {w['subject']}: {value} (limit {limit})"
+
+    if fmt == "csv":
+        import csv
+        import io
+
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow(["file", "result", "checks", "failed", "worst_rule", "worst_subject", "worst_value", "worst_limit", "unit", "error"])
+        for r in records:
+            wc = r.get("worst_check") or {}
+            w.writerow([r["file"], r["status"], r.get("checks_run", ""), r.get("checks_failed", ""), wc.get("rule", ""), wc.get("subject", ""),
+                        wc.get("value", ""), wc.get("limit", ""), wc.get("unit", ""), r.get("error", "")])
+        out.write(buf.getvalue())
+        return
+    rows = [["file", "result", "checks", "failed", "worst check, or why the file was refused"]]
+    for r in records:
+        rows.append([r["file"], r["status"].upper() if r["status"] == "failed" else r["status"], str(r.get("checks_run", "")), str(r.get("checks_failed", "")), worst_text(r)])
+    out.write("\n".join(rt.columns(rows, right={2, 3}, indent="")) + "\n")
+    out.write(f"{len(records)} files: {counts['passed']} passed every check, {counts['failed']} failed a check, {counts['refused']} refused\n")
+    out.write(rt.wrapped_caution() + "\n")

@@ -61,15 +61,15 @@ class Output:
             sys.stdout.flush()
 
 
-def solve_one(path: str, options):
-    """Load and solve one file; returns (solution, error)."""
+def solve_one(path: str, options, text: str | None = None):
+    """Load and solve one file (``text``: its content, when already read); returns (solution, error)."""
     from ..language import load, parse
 
     try:
         if path == "-":
-            net = parse(sys.stdin.read(), "<stdin>", options)
+            net = parse(sys.stdin.read() if text is None else text, "<stdin>", options)
         else:
-            net = load(path, options)
+            net = load(path, options, text=text)
         return net.solve(), None
     except DcnetError as err:
         if err.span is None:

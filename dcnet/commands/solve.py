@@ -13,7 +13,10 @@ from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options,
 def add_parser(sub) -> None:
     s = sub.add_parser("solve", help="solve circuit files and print potentials, currents and powers")
     s.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn), folders or patterns; - reads standard input")
-    s.add_argument("--format", choices=("table", "json", "csv", "markdown"), default="table", help="output format (default: table)")
+    s.add_argument(
+        "--format", choices=("table", "json", "csv", "markdown", "jsonl"), default="table",
+        help="output format (default: table); jsonl: one JSON line per file (several files)",
+    )
     s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input; written to a temporary name, then renamed)")
     s.add_argument("-v", "--verbose", action="store_true", help="also print the nonlinear solver's iterations (to standard error)")
     s.add_argument(
@@ -24,6 +27,9 @@ def add_parser(sub) -> None:
         "ELEMENT.<extra> (e.g. P1.drop_pct), or NODE,NODE for the voltage between two nodes",
     )
     add_input_options(s)
+    from ..parallel import add_options
+
+    add_options(s)  # several files: --jobs, --cluster
     s.set_defaults(run=run)
 
 
@@ -34,7 +40,7 @@ def run(args) -> int:
     opts = options(args)
     files = expand_inputs(args.files)
     out = Output()
-    if len(files) == 1 and not Path(args.files[0]).is_dir():
+    if len(files) == 1 and not Path(args.files[0]).is_dir() and args.format != "jsonl":
         sol, err = solve_one(files[0], opts)
         if err is not None:
             print(err.render(), file=sys.stderr)
@@ -100,39 +106,32 @@ def _show(sol, specs, fmt, file, out) -> int:
 
 
 def _solve_many(files, opts, args, out) -> int:
+    """Several files: solved in parallel (local worker processes or a Dask cluster), one record each."""
+    from ..folders import run_files
     from ..report import text as rt
 
+    records = run_files(
+        files, opts, show=args.show or (), result=args.format == "json", jobs=args.jobs, cluster=args.cluster
+    )
     counts = {"ok": 0, "check failed": 0, "refused": 0}
-    records = []
     worst = EXIT_OK
-    for path in files:
-        sol, err = solve_one(path, opts)
-        if err is not None:
-            counts["refused"] += 1
+    for rec in records:
+        counts[rec["status"]] += 1
+        if rec["status"] == "refused":
             worst = EXIT_BAD_INPUT
-            print(err.render(), file=sys.stderr)
-            records.append({"file": path, "status": "refused", "error": str(err)})
-            continue
-        code = status(sol)
-        worst = max(worst, code)
-        word = "ok" if code == EXIT_OK else "check failed"
-        counts[word] += 1
-        rec = {"file": path, "status": word, "elements": len(sol.netlist.elements), "nodes": len(sol.netlist.node_index)}
-        rec["kcl_max_residual_A"] = sol.balance["kcl_max_residual_A"]
-        if args.show:
-            from ..analysis.solution import QuantityError
-
-            try:
-                rec["values"] = {label: value for label, value, _ in (sol.quantity(q) for q in args.show)}
-            except QuantityError as exc:
-                rec["values"] = {}
-                rec["error"] = str(exc)
-        if args.format == "json":
-            rec["result"] = sol.to_dict()
-        records.append(rec)
+            print(rec["message"], file=sys.stderr)
+        else:
+            worst = max(worst, EXIT_OK if rec["status"] == "ok" else 1)
+            for w in rec["warnings"]:
+                print(f"dcnet: warning: {rec['file']}: {w}", file=sys.stderr)
+    if args.format == "jsonl":
+        for rec in records:
+            out.write(json.dumps({k: v for k, v in rec.items() if k != "message"}) + "\n")
     summary = f"{len(files)} files: {counts['ok']} ok, {counts['check failed']} failed a check, {counts['refused']} refused"
-    if args.format == "json":
-        out.write(json.dumps({"files": records, "summary": counts}, indent=2) + "\n")
+    if args.format == "jsonl":
+        pass
+    elif args.format == "json":
+        out.write(json.dumps({"files": [{k: v for k, v in r.items() if k != "message"} for r in records], "summary": counts}, indent=2) + "\n")
     elif args.format == "csv":
         import csv
         import io
@@ -162,7 +161,7 @@ def _solve_many(files, opts, args, out) -> int:
         out.write(summary + "\n")
         if args.format == "table":
             out.write("\n" + rt.wrapped_caution() + "\n")
-    if args.format in ("json", "csv") or args.output:
+    if args.format in ("json", "csv", "jsonl") or args.output:
         print(summary, file=sys.stderr)
     return worst
 

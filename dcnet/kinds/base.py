@@ -31,7 +31,7 @@ import numpy as np
 from ..errors import ValueRangeError
 from ..units import Dim
 
-__all__ = ["Prop", "Kind", "Branches", "positive", "nonnegative", "finite"]
+__all__ = ["Prop", "Kind", "Branches", "positive", "nonnegative", "finite", "check_samples"]
 
 
 def finite(name: str, x: float) -> None:
@@ -107,6 +107,28 @@ class Kind:
     def branches(self, cols: dict[str, np.ndarray]) -> Branches:
         raise NotImplementedError
 
+    def finish_batch(self, values: dict[str, Any], varied: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+        """:meth:`finish` for many samples at once (studies: dcnet sweep and spread).
+
+        ``values`` are one element's finished values; ``varied`` maps the properties a study
+        changes, as written (before anything is derived from them), to one value per sample.
+        Returns every value that changes, one per sample. The default suits kinds whose
+        ``finish`` derives nothing from quantities: each property is checked for every sample
+        (its ``Prop.check``), and ``finish`` runs on the samples holding each property's
+        extremes, which catches its range rules. Kinds that derive values override it.
+        """
+        out = {key: check_samples(self.props[key], key, arr) for key, arr in varied.items()}
+        for arr in list(out.values()):
+            for k in {int(np.nanargmin(arr)), int(np.nanargmax(arr))}:
+                trial = dict(values)
+                trial.update({key: float(a[k]) for key, a in out.items()})
+                try:
+                    self.finish(trial)
+                except ValueRangeError as err:
+                    err.message += f" (sample {k + 1})"
+                    raise
+        return out
+
     # ------------------------------------------------------- nonlinear kinds
     # A kind whose elements (some or all) are nonlinear answers these; the Newton solver
     # (analysis/newton.py) calls them on the nonlinear elements only, as arrays.
@@ -152,6 +174,22 @@ class Kind:
         else:
             busy = np.full(len(i), self.busy_word, dtype=object)
         return np.where(idle, "idle", busy)
+
+
+def check_samples(spec: Prop, key: str, arr: np.ndarray) -> np.ndarray:
+    """Apply a property's check to every sample (its extremes and any value that is not finite)."""
+    arr = np.asarray(arr, dtype=float)
+    if spec.check is None or not arr.size:
+        return arr
+    bad = np.flatnonzero(~np.isfinite(arr))
+    picks = [int(bad[0])] if len(bad) else [int(np.argmin(arr)), int(np.argmax(arr))]
+    for k in picks:
+        try:
+            spec.check(key, float(arr[k]))
+        except ValueRangeError as err:
+            err.message += f" (sample {k + 1})"
+            raise
+    return arr
 
 
 def admittance(g: np.ndarray, c: Any = 0.0) -> Branches:

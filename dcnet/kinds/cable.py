@@ -31,7 +31,7 @@ import numpy as np
 from ..data import awg_name, iec60228_table, iec60228_max_resistance, metals, nec_table8, nec_table8_resistance
 from ..errors import InputError, ValueRangeError
 from ..units import AREA, LENGTH, RESISTANCE_PER_LENGTH, TEMPERATURE
-from .base import Kind, Prop, admittance, nonnegative, positive
+from .base import Kind, Prop, admittance, check_samples, nonnegative, positive
 
 __all__ = ["awg_diameter", "awg_area", "conductor_resistance", "table_resistance", "KIND"]
 
@@ -153,12 +153,48 @@ class Cable(Kind):
         values["r_per_m"] = values["r"] / length if length else 0.0
         return values
 
+    def finish_batch(self, values, varied):
+        """The resistance (and what it derives from) for every sample of a study, by the same
+        arithmetic as :meth:`finish`."""
+        out = {key: check_samples(self.props[key], key, arr) for key, arr in varied.items()}
+        for key in ("temp", "insulation"):
+            if key in out and np.nanmin(out[key]) < -273.15:
+                k = int(np.nanargmin(out[key]))
+                raise ValueRangeError(f"{key}={out[key][k]:g} degC is below absolute zero (sample {k + 1})")
+        length = out.get("length", values["length"])
+        if "area" not in values:  # r= per length
+            r_per_m = out.pop("r", values["r_per_m"])
+            out["r_per_m"] = np.broadcast_to(r_per_m, np.shape(length)) if np.ndim(r_per_m) < np.ndim(length) else r_per_m
+            out["r"] = out["r_per_m"] * length
+            return out
+        area = out.pop("size", values["area"])
+        temp = out.get("temp", values["temp"])
+        if "size" in varied:
+            out["area"] = area
+        if values["model"] == "table":
+            n = max(np.size(length), np.size(area), np.size(temp))
+            r = np.empty(n)
+            areas = np.broadcast_to(area, (n,))
+            for a in np.unique(areas):
+                at = areas == a
+                pick = lambda x: np.broadcast_to(x, (n,))[at]  # noqa: E731
+                r[at], _ = table_resistance(pick(length), area=float(a), awg=values.get("awg"), cls=values["class"], temp=pick(temp))
+        else:
+            r = conductor_resistance(length, area, values["metal"], temp)
+        out["r"] = r
+        out["r_per_m"] = r / length
+        return out
+
     def branches(self, cols):
         return admittance(1 / cols["r"])
 
     def extras(self, cols, v, i, ctx):
         ref = ctx.get("system_voltage", 0.0)
-        drop = np.abs(v) / ref * 100.0 if ref > 0 else np.full(len(v), np.nan)
+        if np.ndim(ref):  # one reference per sample (studies)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                drop = np.where(ref > 0, np.abs(v) / ref * 100.0, np.nan)
+        else:
+            drop = np.abs(v) / ref * 100.0 if ref > 0 else np.full(len(v), np.nan)
         return {"resistance_ohm": cols["r"], "drop_pct": drop}
 
 

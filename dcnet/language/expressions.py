@@ -13,7 +13,7 @@ import math
 from ..errors import DimensionError, UnknownNameError, ValueRangeError
 from ..units import DIMENSIONLESS, Quantity, dim_name, lookup_unit
 
-__all__ = ["evaluate", "names_in", "ExpressionProblem", "MAX_MAGNITUDE"]
+__all__ = ["evaluate", "evaluate_array", "names_in", "ExpressionProblem", "MAX_MAGNITUDE"]
 
 #: results beyond this magnitude are refused as overflow
 MAX_MAGNITUDE = 1e100
@@ -150,3 +150,118 @@ def _call(tree, args: list[Quantity]) -> Quantity:
         raise ExpressionProblem(DimensionError, f"{fname} needs arguments of one unit kind", col, len(fname))
     pick = min if fname == "min" else max
     return Quantity(pick(a.value for a in args), args[0].dim)
+
+
+# ----------------------------------------------------------------- studies
+def evaluate_array(tree, env) -> Quantity:
+    """Evaluate a tree whose named values may be numpy arrays (one entry per sample of a study).
+
+    The same rules as :func:`evaluate`: dimensions are checked once for all samples; range
+    problems (division by zero, overflow, the square root of a negative value, a negative
+    number to a fractional power) are raised for the first sample that has them, with the
+    sample's index in the message. Scalar-only inputs give the same floats as :func:`evaluate`.
+    """
+    import numpy as np
+
+    tag = tree[0]
+    if tag == "q":
+        return tree[1]
+    if tag == "name":
+        name = tree[1]
+        if name in env:
+            return env[name]
+        unit = lookup_unit(name)
+        if unit is not None:
+            return unit
+        raise ExpressionProblem(UnknownNameError, f"unknown name '{name}'", tree[2], tree[3])
+    if tag == "neg":
+        q = evaluate_array(tree[1], env)
+        return Quantity(-q.value, q.dim)
+    if tag == "call":
+        return _call_array(tree, [evaluate_array(a, env) for a in tree[3]])
+    left = evaluate_array(tree[1], env)
+    right = evaluate_array(tree[2], env)
+    with np.errstate(all="ignore"):
+        if tag in ("add", "sub"):
+            if left.dim != right.dim:
+                raise ExpressionProblem(
+                    DimensionError,
+                    f"cannot {'add' if tag == 'add' else 'subtract'} {dim_name(right.dim)} and {dim_name(left.dim)}",
+                    _column(tree[2]),
+                )
+            v = left.value + right.value if tag == "add" else left.value - right.value
+            return Quantity(_finite_array(v, tree), left.dim)
+        if tag == "mul":
+            return Quantity(_finite_array(left.value * right.value, tree), _combine(left.dim, right.dim, 1))
+        if tag == "div":
+            _refuse_where(np.asarray(right.value) == 0, ValueRangeError, "division by zero", _column(tree[2]))
+            return Quantity(_finite_array(left.value / right.value, tree), _combine(left.dim, right.dim, -1))
+        if tag == "pow":
+            if right.dim != DIMENSIONLESS:
+                raise ExpressionProblem(DimensionError, "an exponent must be a plain number", _column(tree[2]))
+            p = np.asarray(right.value)
+            if left.dim != DIMENSIONLESS:
+                if p.ndim and not np.all(p == p.flat[0]):
+                    raise ExpressionProblem(DimensionError, "a quantity with a unit needs the same whole power in every sample", _column(tree[2]))
+                p0 = float(p.flat[0]) if p.ndim else float(p)
+                if p0 != int(p0):
+                    raise ExpressionProblem(DimensionError, "a quantity with a unit can only be raised to a whole power", _column(tree[2]))
+            _refuse_where(np.abs(p) > 1000, ValueRangeError, "the exponent is too large", _column(tree[2]))
+            base = np.asarray(left.value)
+            _refuse_where((base == 0) & (p < 0), ValueRangeError, "the power overflows or divides by zero", _column(tree[1]))
+            _refuse_where((base < 0) & (p != np.floor(p)), ValueRangeError, "a negative number to a fractional power", _column(tree[1]))
+            v = left.value**right.value
+            dim = left.dim if left.dim == DIMENSIONLESS else tuple(int(d * (p.flat[0] if p.ndim else p)) for d in left.dim)
+            return Quantity(_finite_array(v, tree), dim)
+    raise AssertionError(tag)  # pragma: no cover
+
+
+def _first(mask) -> int | None:
+    import numpy as np
+
+    mask = np.asarray(mask)
+    if not mask.any():
+        return None
+    return int(np.flatnonzero(mask.ravel())[0]) if mask.ndim else 0
+
+
+def _refuse_where(mask, error_class, message: str, column: int) -> None:
+    k = _first(mask)
+    if k is not None:
+        where = f" (sample {k + 1})" if getattr(mask, "ndim", 0) else ""
+        raise ExpressionProblem(error_class, message + where, column)
+
+
+def _finite_array(v, node):
+    import numpy as np
+
+    arr = np.asarray(v)
+    _refuse_where(~np.isfinite(arr) | (np.abs(arr) > MAX_MAGNITUDE), ValueRangeError, "the value overflows (too large to be a physical quantity)", _column(node))
+    return v
+
+
+def _call_array(tree, args: list[Quantity]) -> Quantity:
+    import numpy as np
+
+    fname, col = tree[1], tree[2]
+    if fname not in _FUNCS or (fname in ("sqrt", "abs") and len(args) != 1):
+        return _call(tree, args)  # the scalar path words the error
+    if fname == "abs":
+        return Quantity(np.abs(args[0].value) if isinstance(args[0].value, np.ndarray) else abs(args[0].value), args[0].dim)
+    if fname == "sqrt":
+        q = args[0]
+        if any(d % 2 for d in q.dim):
+            raise ExpressionProblem(DimensionError, f"cannot take the square root of {dim_name(q.dim)}", col, len(fname))
+        _refuse_where(np.asarray(q.value) < 0, ValueRangeError, "square root of a negative value", col)
+        value = np.sqrt(q.value) if isinstance(q.value, np.ndarray) else math.sqrt(q.value)
+        return Quantity(value, tuple(d // 2 for d in q.dim))
+    dims = {a.dim for a in args}
+    if len(dims) != 1:
+        raise ExpressionProblem(DimensionError, f"{fname} needs arguments of one unit kind", col, len(fname))
+    if not any(isinstance(a.value, np.ndarray) for a in args):
+        return _call(tree, args)
+    pick = np.minimum if fname == "min" else np.maximum
+    out = args[0].value
+    for a in args[1:]:
+        out = pick(out, a.value)
+    return Quantity(out, args[0].dim)

@@ -1,0 +1,292 @@
+"""Many samples of one circuit, solved together: one topology, values per sample.
+
+A study (``dcnet sweep``, ``dcnet spread``) changes element values but not which
+nodes they join, so every sample has the same MNA layout. This module assembles the
+samples' systems side by side and solves them together:
+
+* **dense** systems (up to :data:`~dcnet.analysis.mna.DENSE_LIMIT` unknowns) are stacked
+  into one ``(samples, n, n)`` array and solved by numpy's stacked ``np.linalg.solve``
+  (LAPACK ``gesv`` for each matrix, with no Python loop). The entries are accumulated in
+  exactly the order :func:`dcnet.analysis.mna.assemble` uses, so a sample gives the very
+  same floats as solving that circuit on its own;
+* **sparse** systems share one analysis of their pattern: the compressed-column structure
+  and the fill-reducing column ordering are computed once (from the nominal circuit's
+  factorisation), each sample only scatters its values into the fixed structure and is
+  factored numerically with that ordering.
+
+Every sample is verified as a single solve is (Kirchhoff's current law at every node and the
+power sum), with one round of iterative refinement for the samples that need it; a sample
+that still does not verify is refused, naming it.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..errors import NumericalError
+from .branches import BranchTable
+from .solve import REFUSE_REL, WARN_REL
+
+__all__ = ["BatchSolution", "solve_batch", "dense_chunk"]
+
+
+class BatchSolution:
+    """Potentials, element voltages and currents of many samples (one row per sample)."""
+
+    def __init__(self, potentials: np.ndarray, v: np.ndarray, i: np.ndarray, balance: dict):
+        self.potentials = potentials
+        self.v = v
+        self.i = i
+        self.balance = balance
+
+
+def _rows(bt: BranchTable):
+    n = bt.n_nodes
+    row = np.arange(n, dtype=np.int64)
+    row = row - (row > bt.ground)
+    row[bt.ground] = -1
+    return row, n - 1
+
+
+def _pattern(bt: BranchTable, g: np.ndarray, c: np.ndarray):
+    """The triplet layout of :func:`dcnet.analysis.mna.triplets`, for values that vary per sample.
+
+    Returns the matrix triplet targets (I, J), which branch feeds each triplet and with what
+    sign, and the right-hand side's targets and sources, all in mna's order.
+    """
+    row, N = _rows(bt)
+    ra, rb = row[bt.a], row[bt.b]
+    gnz = (g != 0).any(axis=0) if g.ndim == 2 else g != 0
+    adm = np.flatnonzero(~bt.is_voltage & gnz)
+    pa, pb = ra[adm], rb[adm]
+    vb = np.flatnonzero(bt.solved_voltage)
+    k = np.arange(N, N + len(vb), dtype=np.int64)
+    va, vbb = ra[vb], rb[vb]
+    I = np.concatenate([pa, pb, pa, pb, va, vbb, k, k])
+    J = np.concatenate([pa, pb, pb, pa, k, k, va, vbb])
+    # source of each triplet's value: a branch's g (with a sign) or a constant +-1
+    src = np.concatenate([adm, adm, adm, adm, np.full(4 * len(vb), -1)])
+    sign = np.concatenate([np.ones(2 * len(adm)), -np.ones(2 * len(adm)), np.ones(len(vb)), -np.ones(len(vb)), np.ones(len(vb)), -np.ones(len(vb))])
+    keep = (I >= 0) & (J >= 0)
+    I, J, src, sign = I[keep], J[keep], src[keep], sign[keep]
+    cur_nz = (c != 0).any(axis=0) if c.ndim == 2 else c != 0
+    nz = np.flatnonzero(~bt.is_voltage & cur_nz)
+    sa, sb = ra[nz], rb[nz]
+    # mna subtracts c at the first node for every branch, then adds it at the second
+    z_tgt = np.concatenate([sa[sa >= 0], sb[sb >= 0]])
+    z_src = np.concatenate([nz[sa >= 0], nz[sb >= 0]])
+    z_sign = np.concatenate([-np.ones(int((sa >= 0).sum())), np.ones(int((sb >= 0).sum()))])
+    return row, N, vb, I, J, src, sign, z_tgt, z_src, z_sign
+
+
+def _ranks(targets: np.ndarray) -> list[np.ndarray]:
+    """Positions grouped by how many earlier positions hit the same target (0, 1, 2...).
+
+    Adding rank 0, then rank 1, ... reproduces a sequential ``np.add.at`` exactly, since within
+    a rank every target appears once.
+    """
+    if not len(targets):
+        return []
+    order = np.argsort(targets, kind="stable")
+    t = targets[order]
+    start = np.r_[0, np.flatnonzero(t[1:] != t[:-1]) + 1]
+    group_start = np.repeat(start, np.diff(np.r_[start, len(t)]))
+    rank = np.empty(len(t), dtype=np.int64)
+    rank[order] = np.arange(len(t)) - group_start
+    return [np.flatnonzero(rank == r) for r in range(int(rank.max()) + 1)]
+
+
+def _values(src: np.ndarray, sign: np.ndarray, g: np.ndarray, S: int) -> np.ndarray:
+    """Triplet values per sample: sign * g[branch], or the sign itself for constants."""
+    out = np.empty((S, len(src)))
+    from_g = src >= 0
+    gs = g[:, src[from_g]] if g.ndim == 2 else np.broadcast_to(g[src[from_g]], (S, int(from_g.sum())))
+    out[:, from_g] = np.where(sign[from_g] > 0, gs, -gs)
+    out[:, ~from_g] = sign[~from_g]
+    return out
+
+
+def dense_chunk(bt: BranchTable, g, c, e, *, refine: bool = True):
+    """Assemble and solve the dense systems of one chunk of samples.
+
+    ``g``, ``c``, ``e`` are ``(samples, elements)`` arrays (or one row shared by all samples).
+    Returns (x, A, z, layout) with ``x`` of shape ``(samples, unknowns)``.
+    """
+    S = max(np.shape(a)[0] if np.ndim(a) == 2 else 1 for a in (g, c, e))
+    row, N, vb, I, J, src, sign, z_tgt, z_src, z_sign = _pattern(bt, g, c)
+    m = N + len(vb)
+    A = np.zeros((S, m * m))
+    V = _values(src, sign, g, S)
+    flat = I * m + J
+    for r, sel in enumerate(_ranks(flat)):
+        if r == 0:
+            A[:, flat[sel]] = V[:, sel]  # 0 + x is x: the first value at each entry is placed
+        else:
+            A[:, flat[sel]] += V[:, sel]
+    z = np.zeros((S, m))
+    zv = _values(z_src, z_sign, c, S)
+    for r, sel in enumerate(_ranks(z_tgt)):
+        if r == 0:
+            z[:, z_tgt[sel]] = zv[:, sel]
+        else:
+            z[:, z_tgt[sel]] += zv[:, sel]
+    if len(vb):
+        z[:, N:] = e[:, vb] if np.ndim(e) == 2 else e[vb]
+    A = A.reshape(S, m, m)
+    finite = np.isfinite(V).all(axis=1)  # A is made of these values
+    if not finite.all():
+        k = int(np.flatnonzero(~finite)[0])
+        raise NumericalError(f"the circuit matrix holds a value that is not finite (sample {k + 1})")
+    x = _stacked_solve(A, z)
+    return x, A, z, (row, N, vb)
+
+
+def _stacked_solve(A: np.ndarray, z: np.ndarray) -> np.ndarray:
+    if A.shape[1] == 0:
+        return np.zeros((A.shape[0], 0))
+    try:
+        return np.linalg.solve(A, z[..., None])[..., 0]
+    except np.linalg.LinAlgError:
+        # find the singular sample(s) to name them; the others are still solved
+        for k in range(A.shape[0]):
+            try:
+                np.linalg.solve(A[k], z[k])
+            except np.linalg.LinAlgError:
+                raise NumericalError(f"the circuit matrix is singular (sample {k + 1})") from None
+        raise NumericalError("the circuit matrix is singular") from None  # pragma: no cover
+
+
+class SparsePattern:
+    """The fixed compressed-column structure and column ordering shared by every sample."""
+
+    def __init__(self, bt: BranchTable, g, c):
+        from scipy.sparse import csc_matrix
+        from scipy.sparse.linalg import splu
+
+        self.layout = _pattern(bt, g, c)
+        row, N, vb, I, J, src, sign, *_ = self.layout
+        m = N + len(vb)
+        self.m = m
+        key = J * m + I  # column-major: the compressed-column order
+        uniq, self.slot = np.unique(key, return_inverse=True)
+        self.indices = (uniq % m).astype(np.int32)
+        self.indptr = np.r_[0, np.cumsum(np.bincount(uniq // m, minlength=m))].astype(np.int32)
+        self.nnz = len(uniq)
+        self._csc = csc_matrix
+        # the ordering: one fill-reducing analysis of the nominal matrix
+        V = _values(src, sign, g if np.ndim(g) == 1 else g[0], 1)[0]
+        nominal = self.matrix(V)
+        try:
+            lu = splu(nominal, permc_spec="MMD_AT_PLUS_A")
+        except RuntimeError as exc:
+            raise NumericalError(f"the circuit matrix is singular ({exc})") from None
+        perm = lu.perm_c  # column j of the factored matrix is column perm^-1... of A
+        self.Pc = csc_matrix((np.ones(m), (perm, np.arange(m))), shape=(m, m))
+        self.Pc = self.Pc.T.tocsc()  # A @ Pc puts the columns in the factor's order
+
+    def matrix(self, values: np.ndarray):
+        data = np.bincount(self.slot, weights=values, minlength=self.nnz)
+        return self._csc((data, self.indices, self.indptr), shape=(self.m, self.m))
+
+
+def sparse_samples(bt: BranchTable, g, c, e, pattern: SparsePattern):
+    """Solve sparse samples one after another with the shared structure and ordering."""
+    from scipy.sparse.linalg import splu
+
+    S = max(np.shape(a)[0] if np.ndim(a) == 2 else 1 for a in (g, c, e))
+    row, N, vb, I, J, src, sign, z_tgt, z_src, z_sign = pattern.layout
+    m = pattern.m
+    V = _values(src, sign, g, S)
+    zv = _values(z_src, z_sign, c, S)
+    x = np.empty((S, m))
+    mats, rhs = [], []
+    for k in range(S):
+        A = pattern.matrix(V[k])
+        z = np.zeros(m)
+        np.add.at(z, z_tgt, zv[k])
+        if len(vb):
+            z[N:] = e[k, vb] if np.ndim(e) == 2 else e[vb]
+        try:
+            lu = splu((A @ pattern.Pc).tocsc(), permc_spec="NATURAL")
+        except RuntimeError as exc:
+            raise NumericalError(f"the circuit matrix is singular (sample {k + 1}: {exc})") from None
+        x[k] = pattern.Pc @ lu.solve(z)
+        mats.append((A, lu))
+        rhs.append(z)
+    return x, mats, np.array(rhs), (row, N, vb)
+
+
+def currents_batch(bt: BranchTable, layout, x: np.ndarray, g, c):
+    """Potentials, element voltages and currents for every sample (as :func:`solve.currents`)."""
+    row, N, vb = layout
+    S = x.shape[0]
+    pot = np.zeros((S, bt.n_nodes))
+    mask = row >= 0
+    pot[:, mask] = x[:, row[mask]]
+    v = pot[:, bt.a] - pot[:, bt.b]
+    i = g * v + c
+    if len(vb):
+        i[:, vb] = x[:, N:]
+    return pot, v, i
+
+
+def verify_batch(bt: BranchTable, pot, v, i, g, c) -> dict:
+    """The self-check of :func:`dcnet.analysis.solve.verify`, for every sample at once."""
+    S, n = pot.shape
+    base = (np.arange(S, dtype=np.int64) * n)[:, None]
+    leaving = np.bincount((base + bt.a).ravel(), weights=i.ravel(), minlength=S * n) - np.bincount(
+        (base + bt.b).ravel(), weights=i.ravel(), minlength=S * n
+    )
+    leaving = leaving.reshape(S, n)
+    kcl = np.abs(leaving).max(axis=1, initial=0.0)
+    vmax = np.abs(pot).max(axis=1, initial=0.0)
+    adm = ~bt.is_voltage
+    g2 = np.broadcast_to(g, (S, len(adm)))[:, adm]
+    c2 = np.broadcast_to(c, (S, len(adm)))[:, adm]
+    scale_i = np.maximum.reduce([np.abs(i).max(axis=1, initial=0.0), np.abs(g2).max(axis=1, initial=0.0) * vmax, np.abs(c2).max(axis=1, initial=0.0)])
+    p = v * i
+    psum = p.sum(axis=1)
+    pscale = np.maximum(np.abs(p).sum(axis=1), scale_i * vmax)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        kcl_rel = np.where(scale_i > 0, kcl / scale_i, kcl)
+        p_rel = np.where(pscale > 0, np.abs(psum) / pscale, np.abs(psum))
+    return {
+        "kcl_max_residual_A": kcl,
+        "power_sum_W": psum,
+        "kcl_relative": kcl_rel,
+        "power_relative": p_rel,
+        "ok": (kcl_rel <= WARN_REL) & (p_rel <= WARN_REL),
+    }
+
+
+def solve_batch(bt: BranchTable, g, c, e, *, sparse: SparsePattern | None = None) -> BatchSolution:
+    """Solve every sample of one chunk and verify each (refining those that need it)."""
+    if sparse is None:
+        x, A, z, layout = dense_chunk(bt, g, c, e)
+    else:
+        x, mats, z, layout = sparse_samples(bt, g, c, e, sparse)
+    pot, v, i = currents_batch(bt, layout, x, g, c)
+    bal = verify_batch(bt, pot, v, i, g, c)
+    bad = np.flatnonzero(~bal["ok"])
+    if len(bad):
+        # one round of iterative refinement for the samples whose self-check is not clean
+        for k in bad:
+            if sparse is None:
+                r = z[k] - A[k] @ x[k]
+                x[k] = x[k] + np.linalg.solve(A[k], r)
+            else:
+                Ak, lu = mats[k]
+                r = z[k] - Ak @ x[k]
+                x[k] = x[k] + sparse.Pc @ lu.solve(r)
+        pot, v, i = currents_batch(bt, layout, x, g, c)
+        bal = verify_batch(bt, pot, v, i, g, c)
+        worst = np.maximum(bal["kcl_relative"], bal["power_relative"])
+        refused = np.flatnonzero(worst > REFUSE_REL)
+        if len(refused):
+            k = int(refused[0])
+            raise NumericalError(
+                f"sample {k + 1} does not verify: Kirchhoff residual {bal['kcl_max_residual_A'][k]:.3g} A, "
+                f"power sum {bal['power_sum_W'][k]:.3g} W",
+                hint="element values may span too many decades in this sample; check the range of the study",
+            )
+    return BatchSolution(pot, v, i, bal)
