@@ -132,3 +132,18 @@ def test_study_output_never_overwrites_the_input(capsys, tmp_path):
     code, _, err = run(capsys, "sweep", str(src), "--vary", "run=1m..2m", "--show", "A.current", "--plot", str(src))
     assert code == 2 and "refusing to write over the input file" in err
     assert src.read_bytes() == before
+
+
+def test_sweep_of_a_cable_size_is_batched_and_exact(capsys):
+    # the cable's area is derived again for every point (Kind.finish_batch); reference: the
+    # file with each end of the range written in, solved on its own
+    demo = ROOT / "circuits" / "workshop-feed-spread.dcn"
+    code, out, _ = run(capsys, "sweep", str(demo), "--vary", "size_mm=16mm2..70mm2:2", "--show", "BENCH.voltage", "FP.current", "--format", "json")
+    data = json.loads(out)
+    assert data["solved"] == {"solved together": 2}
+    for k, size in enumerate(("16mm2", "70mm2")):
+        text = re.sub(r"let size_mm = 35 mm2", f"let size_mm = {size}", demo.read_text())
+        sol = dcnet.parse(text, str(demo), base_dir=demo.parent).solve()
+        assert data["quantities"]["BENCH.voltage"]["values"][k] == sol.voltage("BENCH")
+        assert data["quantities"]["FP.current"]["values"][k] == sol.current("FP")
+    assert code == 1  # the thinner cable fails the critical load's drop limit

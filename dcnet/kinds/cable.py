@@ -167,10 +167,10 @@ class Cable(Kind):
             out["r_per_m"] = np.broadcast_to(r_per_m, np.shape(length)) if np.ndim(r_per_m) < np.ndim(length) else r_per_m
             out["r"] = out["r_per_m"] * length
             return out
-        area = out.pop("size", values["area"])
+        area = out.get("size", values["area"])
         temp = out.get("temp", values["temp"])
         if "size" in varied:
-            out["area"] = area
+            out["area"] = area  # "size" stays as written, "area" is what the models use
         if values["model"] == "table":
             n = max(np.size(length), np.size(area), np.size(temp))
             r = np.empty(n)
