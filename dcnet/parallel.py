@@ -226,6 +226,10 @@ class DaskRunner:
 def make_runner(jobs: int | None, cluster: str | None, tasks: int):
     """The runner for ``tasks`` pieces of work: the cluster when given, local processes when
     there is more than one task and more than one job, else this process."""
+    if jobs is not None and jobs < 1:
+        from .errors import InputError
+
+        raise InputError(f"--jobs {jobs}: give at least 1 worker process")
     if cluster:
         return DaskRunner(cluster)
     jobs = default_jobs() if jobs is None else jobs

@@ -95,7 +95,7 @@ def test_single_file_run_stays_light():
         "import sys; from dcnet.cli import main; rc = main(['solve', %r]); "
         "heavy = [m for m in ('dask', 'distributed', 'matplotlib', 'concurrent.futures.process', 'multiprocessing.pool') if m in sys.modules]; "
         "print('HEAVY', heavy); sys.exit(rc)"
-    ) % CABIN
+    ).replace("%r", repr(CABIN))
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT)
     assert proc.returncode == 0, proc.stderr
     assert "HEAVY []" in proc.stdout

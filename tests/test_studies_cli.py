@@ -147,3 +147,17 @@ def test_sweep_of_a_cable_size_is_batched_and_exact(capsys):
         assert data["quantities"]["BENCH.voltage"]["values"][k] == sol.voltage("BENCH")
         assert data["quantities"]["FP.current"]["values"][k] == sol.current("FP")
     assert code == 1  # the thinner cable fails the critical load's drop limit
+
+
+def test_jobs_must_be_positive(capsys):
+    code, _, err = run(capsys, "spread", SHED, "--samples", "10", "--jobs", "0")
+    assert code == 2 and "give at least 1 worker process" in err
+
+
+def test_python_api_sweep_and_spread():
+    from dcnet.analysis import studies
+
+    _, values, res = studies.sweep(CABIN, {"run": studies.axis_values(1.0, 3.0, 3, False)}, ["A.current"])
+    assert res.quantities.shape == (3, 1) and list(values["run"]) == [1.0, 2.0, 3.0]
+    _, values, res = studies.spread(SHED, 50, seed=4, names=["r_mono"], show=["BAT.s1.fuse.current"])
+    assert values["r_mono"].shape == (50,) and res.n == 50

@@ -44,7 +44,7 @@ from .batch import SparsePattern, solve_batch
 from .branches import branch_table
 from .mna import DENSE_LIMIT
 
-__all__ = ["Study", "ChunkResult", "StudyResult", "CheckSeries", "study_from_file"]
+__all__ = ["Study", "ChunkResult", "StudyResult", "CheckSeries", "study_from_file", "sweep", "spread", "axis_values", "sweep_values", "spread_values", "statistics"]
 
 
 # --------------------------------------------------------------- results
@@ -104,6 +104,40 @@ class StudyResult:
     checks: list[CheckSeries]
     modes: dict[str, int]
     checks_covered: str
+
+    def report_section(self, title: str = "Tolerance spread", percentiles=(5, 50, 95), notes=()) -> dict:
+        """This result as a section of the HTML report (``dcnet.report.html.render(..., spread=result)``)."""
+        from ..report.text import si
+
+        stats = {lab: statistics(self.quantities[:, j], self.nominal[j], percentiles) for j, lab in enumerate(self.labels)}
+        rows = []
+        for lab, unit in zip(self.labels, self.units):
+            st = stats[lab]
+            if st.get("n"):
+                rows.append([lab, si(st["nominal"], unit), si(st["mean"], unit), si(st["std"], unit)] + [si(x, unit) for x in st["percentiles"].values()] + [si(st["worst"], unit)])
+        checks = sorted(self.checks, key=lambda c: c.pass_share)
+        check_rows = []
+        for c in checks[:30]:
+            k = c.worst()
+            check_rows.append([c.rule, c.subject, f"{c.pass_share * 100:.2f} %", si(c.value[k], c.unit) if k is not None else "-", si(c.limit[k], c.unit) if k is not None else "-"])
+        plots = []
+        for j, (lab, unit) in enumerate(zip(self.labels, self.units)):
+            v = self.quantities[:, j]
+            plots.append({"kind": "histogram", "title": lab, "x_label": f"{lab} ({unit})", "values": v[~np.isnan(v)].tolist(), "bins": 40,
+                          "marks": [{"name": "nominal", "x": self.nominal[j]}]})
+        return {
+            "title": title,
+            "summary": [("samples", f"{self.n:,}"), ("solved", "; ".join(f"{n:,} {m}" for m, n in self.modes.items())),
+                        ("samples failing a check", f"{int(self.failed.sum()):,} ({self.failed.mean() * 100:.2f} %)")],
+            "tables": [
+                {"caption": "Quantities over the samples", "columns": ["quantity", "nominal", "mean", "std dev"] + [f"p{p:g}" for p in percentiles] + ["worst"],
+                 "rows": rows, "numeric": list(range(1, 5 + len(percentiles)))},
+                {"caption": "Share of samples passing each check (lowest first)", "columns": ["rule", "subject", "passing", "worst sample", "limit"],
+                 "rows": check_rows, "numeric": [2, 3, 4]},
+            ],
+            "plots": plots,
+            "notes": list(notes) + [f"Checks evaluated per sample: {self.checks_covered}."],
+        }
 
     @property
     def failed(self) -> np.ndarray:
@@ -664,3 +698,31 @@ def statistics(values: np.ndarray, nominal: float, percentiles=(1, 5, 50, 95, 99
         "max": float(v.max()),
         "worst": float(v[far]),
     }
+
+
+# -------------------------------------------------------------- the API
+def sweep(path: str, vary: dict[str, Any], show=(), options=None, runner=None):
+    """Sweep a circuit file: ``vary`` maps let names to their values (SI, one array each; several
+    names make a grid, the first varying slowest). Returns (study, values, StudyResult).
+
+    >>> study, values, result = sweep("circuits/cabin.dcn", {"run": axis_values(1.0, 10.0, 10, False)}, ["A.current"])  # doctest: +SKIP
+    """
+    axes = [(name, np.asarray(v, dtype=float)) for name, v in vary.items()]
+    study = study_from_file(path, [n for n, _ in axes], options, quantities=show)
+    values = sweep_values(study, axes)
+    study.prepare({n: float(v[int(np.abs(v - study.nominal[n]).argmax())]) for n, v in axes})
+    return study, values, study.run(values, runner)
+
+
+def spread(path: str, samples: int, *, seed: int = 1, dist: str = "normal", names=None, independent=(), show=(), options=None, runner=None):
+    """Monte Carlo over the tolerances of a circuit file (every toleranced let, or ``names``).
+    Returns (study, values, StudyResult)."""
+    from ..language import load
+
+    net = load(path, options)
+    if names is None:
+        names = [k[1] for k in net.exprs if k[0] == "let" and "." not in k[1] and net.values[k[1]][2] is not None]
+    study = Study(net, list(names), path=str(path), options=options, independent=independent, quantities=show)
+    values = spread_values(study, samples, seed, dist)
+    study.prepare({n: float(v.flat[0]) for n, v in values.items()})
+    return study, values, study.run(values, runner)

@@ -114,6 +114,10 @@ def run(args) -> int:
         study.prepare(far)
     except QuantityError as exc:
         raise InputError(f"--show: {exc}") from None
+    import sys
+
+    for w in study.nominal_solution.warnings:
+        print(f"dcnet: warning: {args.file}: {w}", file=sys.stderr)
     n = len(next(iter(values.values())))
     bar = Progress(n, "points")
     runner = make_runner(args.jobs, args.cluster, -(-n // study.chunk_size()))

@@ -14,7 +14,21 @@ from typing import Any
 
 import numpy as np
 
-from ..units import AREA, CHARGE, CONDUCTANCE, CURRENT, DIMENSIONLESS, ENERGY, LENGTH, POWER, RESISTANCE, RESISTANCE_PER_LENGTH, TEMPERATURE, TIME, VOLTAGE
+from ..units import (
+    AREA,
+    CHARGE,
+    CONDUCTANCE,
+    CURRENT,
+    DIMENSIONLESS,
+    ENERGY,
+    LENGTH,
+    POWER,
+    RESISTANCE,
+    RESISTANCE_PER_LENGTH,
+    TEMPERATURE,
+    TIME,
+    VOLTAGE,
+)
 from .text import columns, si, wrapped_caution
 
 __all__ = ["let_unit", "show_value", "sweep_table", "sweep_csv", "sweep_json", "spread_table", "spread_csv", "spread_json", "plot_sweep", "plot_spread"]

@@ -22,7 +22,8 @@ def _all_quantities(net):
 def _substituted(text: str, values: dict[str, float], units: dict[str, str]) -> str:
     """The circuit text with each let line's value replaced by a literal in SI units (an exact float)."""
     for name, value in values.items():
-        text, n = re.subn(rf"(?m)^(let\s+{name}\s*=\s*)[^#\n]*", lambda m: f"{m.group(1)}{float(value)!r} {units[name]} ", text)
+        literal = f"{float(value)!r} {units[name]} "
+        text, n = re.subn(rf"(?m)^(let\s+{name}\s*=\s*)[^#\n]*", lambda m, lit=literal: m.group(1) + lit, text)
         assert n == 1
     return text
 
@@ -252,3 +253,14 @@ def test_unknown_let_names_the_nearest():
     with pytest.raises(dcnet.DcnetError, match="is not a let value") as exc:
         Study(net, ["runn"], path=str(CABIN))
     assert "did you mean 'run'" in exc.value.hint
+
+
+def test_spread_result_is_a_section_of_the_html_report():
+    from dcnet.analysis import studies
+    from dcnet.report.html import render
+
+    study, _, res = studies.spread(str(SHED), 300, seed=1, independent=["r_mono"], show=["BAT.s1.fuse.current"])
+    section = res.report_section()
+    assert section["title"] == "Tolerance spread" and section["plots"][0]["kind"] == "histogram"
+    page = render(study.nominal_solution, file=str(SHED), spread=res)
+    assert "Tolerance spread" in page and "BAT.s1.fuse.current" in page
