@@ -122,18 +122,24 @@ class InlineRunner:
 
 
 class PoolRunner:
-    """``jobs`` local worker processes (forked where the system allows it: they start at once and
-    share the parent's imported modules)."""
+    """``jobs`` local worker processes (forked where the system allows it and this process has a
+    single thread: they start at once and share the parent's imported modules)."""
 
     def __init__(self, jobs: int):
         self.jobs = max(1, int(jobs))
         self.name = f"{self.jobs} local worker processes"
 
     def _context(self):
+        """fork when this process has one thread (workers start at once); with other threads
+        alive (a Dask client, a host application) a fork could copy a lock in use, so the
+        workers come from a fork server instead."""
         import multiprocessing as mp
+        import threading
 
         methods = mp.get_all_start_methods()
-        return mp.get_context("fork" if "fork" in methods and sys.platform.startswith("linux") else None)
+        if sys.platform.startswith("linux") and "fork" in methods:
+            return mp.get_context("fork" if threading.active_count() == 1 else "forkserver")
+        return mp.get_context()
 
     def map(self, fn, items, args=(), progress=None, batch: int = 1):
         from concurrent.futures import ProcessPoolExecutor, as_completed

@@ -260,6 +260,9 @@ def _save(fig, path: str, protect) -> None:
     fig.savefig(buf, format="png", dpi=110)
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
     try:
+        umask = os.umask(0)
+        os.umask(umask)
+        os.fchmod(fd, 0o666 & ~umask)  # an ordinary file for the user, not mkstemp's private mode
         with os.fdopen(fd, "wb") as fh:
             fh.write(buf.getvalue())
         os.replace(tmp, target)
@@ -310,9 +313,9 @@ def plot_spread(path: str, file: str, result, stats, samples: int, protect) -> N
         v = v[~np.isnan(v)]
         a.hist(v, bins=min(60, max(10, int(math.sqrt(len(v))))), color="#4a7ab5", alpha=0.85)
         a.axvline(stats[lab]["nominal"], color="black", linewidth=1, label="nominal")
-        for p, x in stats[lab].get("percentiles", {}).items():
-            if p in (5.0, 95.0):
-                a.axvline(x, color="#c0392b", linewidth=0.8, linestyle="--", label=f"p{p:g}")
+        marked = [(p, x) for p, x in stats[lab].get("percentiles", {}).items() if p in (5.0, 95.0)]
+        for k, (p, x) in enumerate(marked):
+            a.axvline(x, color="#c0392b", linewidth=0.8, linestyle="--", label="p5 and p95" if k == 0 else None)
         a.set_xlabel(f"{lab} ({unit})" if unit else lab)
         a.set_ylabel("samples")
         a.legend(fontsize=7)
