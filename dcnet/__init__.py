@@ -14,11 +14,27 @@
 from __future__ import annotations
 
 from . import errors
+from .analysis.equivalent import Equivalent, equivalent
 from .analysis.solution import Solution
+from .analysis.symbolic import Formula, formulas
 from .errors import DcnetError
 from .language import Options, load, parse
 from .netlist import Element, Netlist
 
-__all__ = ["load", "parse", "Options", "Netlist", "Element", "Solution", "DcnetError", "errors", "__version__"]
+__all__ = [
+    "load",
+    "parse",
+    "Options",
+    "Netlist",
+    "Element",
+    "Solution",
+    "formulas",
+    "Formula",
+    "equivalent",
+    "Equivalent",
+    "DcnetError",
+    "errors",
+    "__version__",
+]
 
 __version__ = "0.1.0"

@@ -5,7 +5,8 @@ By Thevenin's theorem the current into a zero-ohm fault between nodes X and Y is
 between X and Y with every source zeroed (ideal voltage sources shorted, current sources
 opened, cells reduced to their internal resistance). Zeroing the sources does not change
 the circuit matrix, so ``R_th`` comes from the same factorisation as the solve: one extra
-right-hand side per fault point. The currents of every element during the fault follow by
+right-hand side per fault point (``dcnet.analysis.equivalent.thevenin``, which the
+``dcnet equivalent`` command uses too). The currents of every element during the fault follow by
 superposition, so a fuse's own share of the fault current is exact too.
 
 Fault points: each fuse (at whichever of its ends gives it the larger fault current; the
@@ -28,19 +29,10 @@ def fault_response(sol, x: str, y: str):
     Returns (inf, None) when x and y are joined by an ideal path with sources (no finite answer)
     and (0, currents) when no source drives the point.
     """
-    system, factor, bt = sol.system, sol.factor, sol.branches
-    idx = sol.netlist.node_index
-    rows = system.row_of_node
-    rhs = np.zeros(system.size)
-    rx, ry = rows[idx[x]], rows[idx[y]]
-    if rx >= 0:
-        rhs[rx] += 1.0
-    if ry >= 0:
-        rhs[ry] -= 1.0
-    w = factor.solve(rhs)
-    pot_w = system.potentials(w)
-    r_th = pot_w[idx[x]] - pot_w[idx[y]]
-    v_oc = sol.potential(x) - sol.potential(y)
+    from ..analysis.equivalent import thevenin
+
+    system, bt = sol.system, sol.branches
+    v_oc, r_th, pot_w, w = thevenin(sol, x, y)
     if r_th <= 1e-15 * max(1.0, abs(v_oc)):
         return (np.inf if v_oc != 0 else 0.0), None
     i_sc = v_oc / r_th

@@ -4,4 +4,4 @@ To add a command, write ``dcnet/commands/<name>.py`` with ``add_parser`` and ``r
 and add its name to ``COMMANDS``. Import heavy libraries inside ``run``, not at module level.
 """
 
-COMMANDS = ("solve", "check", "layouts", "cycle", "report", "sweep", "spread")
+COMMANDS = ("solve", "check", "layouts", "cycle", "report", "sweep", "spread", "formula", "equivalent")
