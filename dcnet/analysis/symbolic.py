@@ -905,6 +905,7 @@ class _Engine:
             self.term_bound = 1.0
             return
         L = np.zeros((m, m))
+        uses: dict = {}  # symbol -> how many branches between groups carry it
         for p in np.flatnonzero(symbolic & ~bt.is_voltage):
             i, j = groups[find(bt.a[p])], groups[find(bt.b[p])]
             if i == j:
@@ -913,9 +914,15 @@ class _Engine:
             L[j, j] += 1
             L[i, j] -= 1
             L[j, i] -= 1
+            for s in self.g[p].free_symbols:
+                uses[s] = uses.get(s, 0) + 1
         keep_idx = [k for k in range(m) if k != ground]
         sign, logdet = np.linalg.slogdet(L[np.ix_(keep_idx, keep_idx)]) if keep_idx else (1.0, 0.0)
-        bound = float(np.exp(logdet)) if sign > 0 else 1.0
+        trees = float(np.exp(logdet)) if sign > 0 else 1.0
+        # a symbol shared by several branches merges terms: its degree is at most its count
+        # (and the number of groups less one), which bounds the monomials too
+        degrees = float(np.prod([min(k, m - 1) + 1.0 for k in uses.values()])) if uses else 1.0
+        bound = min(trees, degrees)
         self.term_bound = bound
         if bound > max_terms:
             raise LimitError(
@@ -1220,9 +1227,8 @@ class _Engine:
     def _ring(self):
         from sympy import QQ
 
-        if not hasattr(self, "_Rall"):
-            gens = self.mgens + self.rgens
-            self._Rall = QQ[tuple(gens)].ring if gens else None
+        if not hasattr(self, "_Rall"):  # at least one symbol is kept, so there is a generator
+            self._Rall = QQ[tuple(self.mgens + self.rgens)].ring
         return self._Rall
 
     def _lift(self, p):
@@ -1230,8 +1236,6 @@ class _Engine:
         from sympy import QQ
 
         R = self._ring()
-        if R is None:
-            return QQ(int(p)) if not hasattr(p, "items") else QQ(int(p[()]) if p else 0)
         nr = len(self.rgens)
         if not hasattr(p, "items"):
             return R(QQ(int(p)))
@@ -1241,27 +1245,21 @@ class _Engine:
         from sympy import QQ
 
         R = self._ring()
-        if R is None:
-            return QQ(1)
         return R.from_dict({(0,) * len(self.mgens) + tuple(m): QQ(1)})
 
     def _from_expr(self, v):
         """An exact sympy expression in the generators as (numerator, denominator) in QQ[all gens]."""
         import sympy
-        from sympy import QQ
 
         R = self._ring()
         num, den = sympy.fraction(sympy.together(sympy.sympify(v)))
-        if R is None:
-            return QQ.from_sympy(num), QQ.from_sympy(den)
         return R.from_expr(num), R.from_expr(den)
 
     def unknown(self, u: int, column: str = "circuit"):
         """Unknown ``u`` (a row of the full system) as (numerator, denominator) polynomials."""
         from sympy import QQ
 
-        R = self._ring()
-        zero = R.zero if R is not None else QQ(0)
+        zero = self._ring().zero
         den = self._lift(self.den)
         cols = list(range(len(self.monomials))) if column == "circuit" else [self.n_cols - 1]
         monos = (
@@ -1297,12 +1295,10 @@ class _Engine:
         return acc, den
 
     def potential(self, node: str, column: str = "circuit"):
-        from sympy import QQ
-
         R = self._ring()
         r = self.row[self.net.node_index[node]]
-        if r < 0:
-            return (R.zero if R is not None else QQ(0)), (R.one if R is not None else QQ(1))
+        if r < 0:  # ground
+            return R.zero, R.one
         return self.unknown(int(r), column)
 
     def between(self, a: str, b: str, column: str = "circuit"):
@@ -1359,15 +1355,10 @@ class _Engine:
         Returns (coefficient, numerator, denominator, expr) as sympy objects."""
         import sympy
 
-        R = self._ring()
-        if R is None:
-            val = sympy.Rational(sympy.QQ.to_sympy(num)) / sympy.Rational(sympy.QQ.to_sympy(den))
-            return val, sympy.Integer(1), sympy.Integer(1), val
         if not num:
             z = sympy.Integer(0)
             return z, z, sympy.Integer(1), z
         num, den = num.cancel(den)
-        gens = list(R.gens)
         syms = self.mgens + self.rgens
         # conductance generators back to resistances: multiply both by s^d, d the highest degree
         flips = [k for k, s in enumerate(syms) if s in self.back]
@@ -1394,7 +1385,6 @@ class _Engine:
 
         Ru = QQ[tuple(target_syms)].ring
         pn, pd = Ru.from_dict(num_d), Ru.from_dict(den_d)
-        del gens
         cn, fn = self._factored(pn)
         cd, fd = self._factored(pd)
         coeff = sympy.Rational(QQ.to_sympy(cn)) / sympy.Rational(QQ.to_sympy(cd))

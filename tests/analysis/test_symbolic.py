@@ -382,6 +382,48 @@ def test_ladder_reduces_the_symbol_free_part(sections):
         assert float(fs[1](x, y)) == pytest.approx(sol.potential("n1"), rel=1e-9)
 
 
+@pytest.mark.parametrize("seed", [0, 1])
+def test_float_elimination_with_ideal_sources_and_links(seed):
+    """A long ladder (over 40 symbol-free unknowns: eliminated in floating point) holding an
+    ideal source, an ideal source between two inner nodes and an ideal link."""
+    rng = random.Random(seed)
+    n = 70
+    lines = ["ground n0", "source S n1 n0 emf=24V"]
+    for k in range(1, n):
+        lines.append(f"resistor A{k} n{k} n{k + 1} r={rng.uniform(0.1, 1)!r}Ohm")
+        lines.append(f"resistor B{k} n{k + 1} n0 r={rng.uniform(5, 50)!r}Ohm")
+    lines += [
+        "link K n20 m20",
+        "resistor M m20 n40 r=2Ohm",
+        "source T n50 n45 emf=3V",
+        "cell C n60 n0 emf=12V r=0.3Ohm",
+    ]
+    text = "\n".join(lines) + "\n"
+    a, b = rng.randrange(1, n), rng.randrange(1, n)
+    fs = formulas(
+        dcnet.parse(text), ["S.current", "K.current", "T.current", "n33", "M.power"], [f"A{a}.r", f"B{b}.r", "C.emf"]
+    )
+    ra, rb, emf = rng.uniform(0.05, 2), rng.uniform(2, 80), rng.uniform(10, 14)
+    t2 = (
+        "\n".join(
+            f"resistor A{a} n{a} n{a + 1} r={ra!r}Ohm"
+            if ln.startswith(f"resistor A{a} ")
+            else f"resistor B{b} n{b + 1} n0 r={rb!r}Ohm"
+            if ln.startswith(f"resistor B{b} ")
+            else f"cell C n60 n0 emf={emf!r}V r=0.3Ohm"
+            if ln.startswith("cell C ")
+            else ln
+            for ln in lines
+        )
+        + "\n"
+    )
+    # Kirchhoff's laws via the verified numeric solve of the rewritten circuit
+    sol = dcnet.parse(t2).solve(checks=False)
+    for f in fs:
+        want = sol.quantity(f.quantity)[1]
+        assert float(f(ra, rb, emf)) == pytest.approx(want, rel=1e-8, abs=1e-9)
+
+
 # --------------------------------------------------------------------------- limits
 
 
