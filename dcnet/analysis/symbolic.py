@@ -312,8 +312,11 @@ def _budget(seconds, engine):
     def _ring(signum, frame):
         raise _OutOfTime
 
+    import time
+
     previous = signal.signal(signal.SIGALRM, _ring)
-    signal.setitimer(signal.ITIMER_REAL, float(seconds))
+    outer, _ = signal.setitimer(signal.ITIMER_REAL, float(seconds))  # a timer someone else had set
+    started = time.monotonic()
     try:
         yield
     except _OutOfTime:
@@ -327,6 +330,8 @@ def _budget(seconds, engine):
     finally:
         signal.setitimer(signal.ITIMER_REAL, 0)
         signal.signal(signal.SIGALRM, previous)
+        if outer:  # give the outer timer back what remains of it
+            signal.setitimer(signal.ITIMER_REAL, max(outer - (time.monotonic() - started), 1e-3))
 
 
 # --------------------------------------------------------------------------- helpers
