@@ -68,3 +68,10 @@ def test_extreme_values_warn_then_refuse():
 def test_ordinary_circuit_has_no_warnings():
     sol = solve("cell C a b emf=12V r=1Ohm\nload L a b r=1Ohm\n")
     assert sol.warnings == []
+
+
+def test_overflowing_solution_is_refused_not_printed():
+    # a junction diode across a 30 kV ideal source: its law overflows; dcnet must refuse
+    text = "diode D n2 n1 is=6e-07A n=1.0\nresistor R n0 n2 r=51674Ohm\nsupply I n1 n0 current=14370A\nsource S n2 n1 emf=30758V\nground n1\n"
+    with pytest.raises(E.NumericalError):
+        dcnet.parse(text).solve()

@@ -234,7 +234,12 @@ def _finish(net, bt, system, factor, x, pot, v, i, balance, warnings, *, refine:
         balance = verify(bt, v, i, pot)
         balance["refined"] = True
     worst = max(balance["kcl_relative"], balance["power_relative"])
-    if worst > REFUSE_REL:
+    if not np.all(np.isfinite(v)) or not np.all(np.isfinite(i)) or not np.isfinite(balance["power_sum_W"]):
+        raise NumericalError(
+            "the solution holds values too large to verify (a current or power overflows)",
+            hint="check for an element driven far outside its range, e.g. a diode across a high-voltage source",
+        )
+    if not worst <= REFUSE_REL:  # also refuses a NaN residual
         raise NumericalError(
             f"the solution does not verify: Kirchhoff residual {balance['kcl_max_residual_A']:.3g} A at "
             f"'{balance['kcl_worst_node']}', power sum {balance['power_sum_W']:.3g} W",
