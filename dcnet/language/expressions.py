@@ -60,6 +60,19 @@ def _check_finite(value: float, node) -> float:
     return value
 
 
+def _lookup_name(tree, env, suggest=None) -> Quantity:
+    """A name in an expression: a named value first, then a unit (so ``3.3 Ohm/km`` works)."""
+    name = tree[1]
+    if name in env:
+        return env[name]
+    unit = lookup_unit(name)
+    if unit is not None:
+        return unit
+    near = suggest(name) if suggest else None
+    hint = f"did you mean '{near}'?" if near else "define it first with: let NAME = VALUE"
+    raise ExpressionProblem(UnknownNameError, f"unknown name '{name}'", tree[2], tree[3], hint)
+
+
 def evaluate(tree, env: dict[str, Quantity], suggest=None) -> Quantity:
     """Evaluate an expression tree against named values ``env``.
 
@@ -69,15 +82,7 @@ def evaluate(tree, env: dict[str, Quantity], suggest=None) -> Quantity:
     if tag == "q":
         return tree[1]
     if tag == "name":
-        name = tree[1]
-        if name in env:
-            return env[name]
-        unit = lookup_unit(name)
-        if unit is not None:
-            return unit
-        near = suggest(name) if suggest else None
-        hint = f"did you mean '{near}'?" if near else "define it first with: let NAME = VALUE"
-        raise ExpressionProblem(UnknownNameError, f"unknown name '{name}'", tree[2], tree[3], hint)
+        return _lookup_name(tree, env, suggest)
     if tag == "neg":
         q = evaluate(tree[1], env, suggest)
         return Quantity(-q.value, q.dim)
@@ -167,13 +172,7 @@ def evaluate_array(tree, env) -> Quantity:
     if tag == "q":
         return tree[1]
     if tag == "name":
-        name = tree[1]
-        if name in env:
-            return env[name]
-        unit = lookup_unit(name)
-        if unit is not None:
-            return unit
-        raise ExpressionProblem(UnknownNameError, f"unknown name '{name}'", tree[2], tree[3])
+        return _lookup_name(tree, env)
     if tag == "neg":
         q = evaluate_array(tree[1], env)
         return Quantity(-q.value, q.dim)
