@@ -192,7 +192,13 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
     if bt.is_nonlinear:
         from .newton import newton_solve
 
-        newton = newton_solve(bt)
+        try:
+            newton = newton_solve(bt)
+        except NumericalError as err:
+            name = err.element or (err.culprits[0] if err.culprits else None)
+            if err.span is None and name and net.has_element(name):
+                err.span = net.element(name).span  # point at the element's line
+            raise
         model = newton.bt
         system, factor, x = newton.system, newton.factor, newton.x
         pot, v, i = newton.potentials, newton.v, newton.i
