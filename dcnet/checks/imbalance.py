@@ -34,21 +34,26 @@ def circulating_current(net, bank: dict) -> float:
     return float(max(abs(sol.current(cells[-1])) for cells in bank["strings"]))
 
 
+def bank_limits(net) -> dict[str, tuple[float, str]]:
+    """Each bank's imbalance limit (a fraction) and its source: its ``limit imbalance among=BANK``
+    statement, or the default."""
+    out = {name: (DEFAULT_MAX, DEFAULT_SOURCE) for name in net.banks}
+    for lim in net.limits:
+        among = lim.values.get("among", ())
+        if lim.rule == "imbalance" and len(among) == 1 and among[0] in net.banks:
+            out[among[0]] = (lim.values["max"].value if "max" in lim.values else DEFAULT_MAX, f"limit statement at {lim.span}")
+    return out
+
+
 def check(net, sol) -> list[Verdict]:
     out: list[Verdict] = []
     limits = [lim for lim in net.limits if lim.rule == "imbalance"]
-    bank_limit = {}
-    for lim in limits:
-        among = lim.values.get("among", ())
-        if len(among) == 1 and among[0] in net.banks:
-            bank_limit[among[0]] = lim
+    bank_limit = bank_limits(net)
     for name, bank in net.banks.items():
         if bank["parallel"] < 2:
             continue
         cur = np.array([sol.current(cells[-1]) for cells in bank["strings"]])
-        lim = bank_limit.get(name)
-        limit = lim.values["max"].value if lim and "max" in lim.values else DEFAULT_MAX
-        source = f"limit statement at {lim.span}" if lim else DEFAULT_SOURCE
+        limit, source = bank_limit[name]
         value = _imbalance(cur)
         at_rest = circulating_current(net, bank)
         detail = (

@@ -57,18 +57,16 @@ def _imbalance_values(cur: np.ndarray) -> np.ndarray:
 
 
 def _imbalance(net, s) -> list[dict]:
-    from .imbalance import DEFAULT_MAX, DEFAULT_SOURCE
+    from .imbalance import DEFAULT_MAX, bank_limits
 
     out = []
     limits = [lim for lim in net.limits if lim.rule == "imbalance"]
-    bank_limit = {lim.values["among"][0]: lim for lim in limits if len(lim.values.get("among", ())) == 1 and lim.values["among"][0] in net.banks}
+    bank_limit = bank_limits(net)
     for name, bank in net.banks.items():
         if bank["parallel"] < 2:
             continue
         cur = np.column_stack([s.current(cells[-1]) for cells in bank["strings"]])
-        lim = bank_limit.get(name)
-        limit = lim.values["max"].value if lim and "max" in lim.values else DEFAULT_MAX
-        source = f"limit statement at {lim.span}" if lim else DEFAULT_SOURCE
+        limit, source = bank_limit[name]
         value = _imbalance_values(cur)
         out.append(_series("imbalance", f"bank {name}", value, limit * 100, "%", np.isnan(value) | (value <= limit * 100), source))
     for lim in limits:
@@ -200,26 +198,12 @@ def _drop(net, s) -> list[dict]:
 
 # ------------------------------------------------------------------- limits
 def _limits(net, s) -> list[dict]:
+    from .limits import measures
+
     out = []
     for lim in net.limits:
-        if lim.rule not in ("current", "voltage"):
-            continue
-        source = f"limit statement at {lim.span}"
-        subjects = []
-        if lim.rule == "current":
-            for name in lim.values.get("of", ()):
-                subjects.append((name, np.abs(s.current(name)), "A"))
-        else:
-            for name in lim.values.get("of", ()):
-                subjects.append((name, np.abs(s.voltage(name)), "V"))
-            if "from" in lim.values and "to" in lim.values:
-                a, b = lim.values["from"], lim.values["to"]
-                subjects.append((f"{a} to {b}", np.abs(s.voltage(a, b)), "V"))
-        for subject, value, unit in subjects:
-            if "max" in lim.values:
-                m = lim.values["max"].value
-                out.append(_series(f"{lim.rule} (highest)", subject, value, m, unit, value <= m, source))
-            if "min" in lim.values:
-                m = lim.values["min"].value
-                out.append(_series(f"{lim.rule} (lowest)", subject, value, m, unit, value >= m, source, sense="min"))
+        if lim.rule in ("current", "voltage"):
+            source = f"limit statement at {lim.span}"
+            for rule, subject, value, m, unit, ok, sense in measures(lim, s.current, s.voltage):
+                out.append(_series(rule, subject, value, m, unit, ok, source, sense=sense))
     return out
