@@ -25,7 +25,7 @@ import math
 from html import escape
 
 from .. import __version__
-from .text import CAUTION, si
+from .text import CAUTION, limit_text, si
 
 __all__ = ["render", "section_data", "power_ledger"]
 
@@ -148,10 +148,7 @@ def _value(v, unit) -> str:
 
 
 def _limit(c: dict) -> str:
-    if c.get("limit") is None:
-        return "-"
-    sign = {"max": "≤ ", "min": "≥ "}.get(c.get("sense", "max"), "")
-    return sign + _value(c["limit"], c["unit"])
+    return limit_text(c, ("≤ ", "≥ "))
 
 
 def power_ledger(sol) -> list[tuple[str, float, str]]:

@@ -151,10 +151,11 @@ def _fmt(value, unit: str) -> str:
     return si(value, unit)
 
 
-def _limit_text(c: dict) -> str:
+def limit_text(c: dict, signs: tuple[str, str] = ("<= ", ">= ")) -> str:
+    """A verdict's limit with its sense: ``<= 10.00 A`` (``signs`` for at-most and at-least)."""
     if c.get("limit") is None:
         return "-"
-    sign = {"max": "<= ", "min": ">= "}.get(c.get("sense", "max"), "")
+    sign = {"max": signs[0], "min": signs[1]}.get(c.get("sense", "max"), "")
     return sign + _fmt(c["limit"], c["unit"])
 
 
@@ -164,7 +165,7 @@ def verdict_lines(checks: list[dict], brief: bool = False, shown: int = 12) -> l
     rows = [["verdict", "rule", "subject", "value", "limit", "source"]]
     listed = checks if not brief else failed + [c for c in checks if c["ok"]][: max(0, shown - len(failed))]
     for c in listed:
-        rows.append([_word(c), c["rule"], c["subject"], _fmt(c["value"], c["unit"]), _limit_text(c), _short(c["source"])])
+        rows.append([_word(c), c["rule"], c["subject"], _fmt(c["value"], c["unit"]), limit_text(c), _short(c["source"])])
     head = f"Checks: {len(checks)} run, {len(failed)} failed" + (" (worst first)" if checks else "")
     out = [head] + columns(rows, right={3, 4})
     details = [c for c in listed if c.get("detail") and (not c["ok"] or c["rule"] in ("fault current", "imbalance"))]
@@ -179,7 +180,7 @@ def verdict_markdown(checks: list[dict]) -> str:
     """The verdict table as Markdown, worst first."""
     out = ["| verdict | rule | subject | value | limit | source |", "|---|---|---|---:|---:|---|"]
     for c in checks:
-        out.append(f"| {_word(c, md=True)} | {c['rule']} | `{c['subject']}` | {_fmt(c['value'], c['unit'])} | {_limit_text(c)} | {c['source']} |")
+        out.append(f"| {_word(c, md=True)} | {c['rule']} | `{c['subject']}` | {_fmt(c['value'], c['unit'])} | {limit_text(c)} | {c['source']} |")
     return "\n".join(out)
 
 
