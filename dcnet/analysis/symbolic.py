@@ -134,7 +134,7 @@ class Formula:
         if self._func is None:
             import sympy
 
-            self._func = sympy.lambdify(self.symbols, self.expr, modules="numpy")
+            self._func = _numeric_function(self.symbols, self.expr)
         return self._func
 
     def __call__(self, *args, **values):
@@ -293,6 +293,10 @@ def equivalent_formulas(
 # --------------------------------------------------------------------------- time budget
 
 
+#: seconds between repeated rings once the budget is spent
+_RING_AGAIN = 0.05
+
+
 class _OutOfTime(BaseException):
     """Raised by the timer signal; a BaseException so that no library handler swallows it."""
 
@@ -310,6 +314,9 @@ def _budget(seconds, engine):
         return
 
     def _ring(signum, frame):
+        # ring again shortly: a signal that lands in a garbage-collector callback or a
+        # destructor has its exception swallowed by the interpreter, and the work would go on
+        signal.setitimer(signal.ITIMER_REAL, _RING_AGAIN)
         raise _OutOfTime
 
     import time
@@ -1449,11 +1456,67 @@ def _lead(p):
     return best if 2 * positive >= len(p) else -best
 
 
+def _numeric_function(syms, expr):
+    """``sympy.lambdify`` to numpy; for a formula too large for Python's compiler (a sum of
+    thousands of terms nests too deeply), an evaluator that walks the expression without
+    recursion instead. Both take the kept values positionally and broadcast over arrays."""
+    import sympy
+
+    try:
+        return sympy.lambdify(syms, expr, modules="numpy")
+    except RecursionError:
+        return _TreeEvaluator(syms, expr)
+
+
+class _TreeEvaluator:
+    """Evaluates a sympy expression of sums, products, powers, symbols and numbers over numpy
+    arrays, visiting the tree with an explicit stack (no recursion, any size)."""
+
+    def __init__(self, syms, expr):
+        import sympy
+
+        self.index = {s: k for k, s in enumerate(syms)}
+        self.expr = expr
+        self.sympy = sympy
+
+    def __call__(self, *args):
+        sympy = self.sympy
+        values = {}
+        stack = [(self.expr, False)]
+        while stack:
+            node, ready = stack.pop()
+            if node in values:
+                continue
+            if node.is_Symbol:
+                values[node] = np.asarray(args[self.index[node]], dtype=float)
+            elif node.is_Number:
+                values[node] = float(node)
+            elif not ready:
+                stack.append((node, True))
+                stack.extend((a, False) for a in node.args if a not in values)
+            else:
+                parts = [values[a] for a in node.args]
+                if isinstance(node, sympy.Add):
+                    out = parts[0]
+                    for p in parts[1:]:
+                        out = out + p
+                elif isinstance(node, sympy.Mul):
+                    out = parts[0]
+                    for p in parts[1:]:
+                        out = out * p
+                elif isinstance(node, sympy.Pow):
+                    out = np.power(parts[0], parts[1])
+                else:
+                    raise TypeError(f"cannot evaluate {type(node).__name__} numerically")
+                values[node] = out
+        return values[self.expr]
+
+
 def _checked(q: _Quantity, expr, fn, fd, coeff, kept) -> Formula:
     import sympy
 
     syms = [k.symbol for k in kept]
-    f = sympy.lambdify(syms, expr, modules="numpy") if syms else None
+    f = _numeric_function(syms, expr) if syms else None
     try:
         value = float(f(*[k.nominal for k in kept])) if f is not None else float(expr)
     except (TypeError, ZeroDivisionError, OverflowError):

@@ -454,6 +454,48 @@ def test_a_slow_request_is_stopped_by_the_time_budget():
     assert "time budget" in str(info.value) and "keep fewer symbols" in info.value.hint
 
 
+
+def test_the_budget_rings_again_when_its_first_ring_is_swallowed():
+    # A timer signal that lands in a garbage-collector callback or a destructor has its
+    # exception swallowed by the interpreter (seen in CI); the budget must still stop the work.
+    import time
+    from types import SimpleNamespace
+
+    from dcnet.analysis.symbolic import _OutOfTime, _budget
+
+    engine = SimpleNamespace(kept={}, size=0)
+    swallowed = []
+    started = time.monotonic()
+    with pytest.raises(E.LimitError, match="time budget"):
+        with _budget(0.01, engine):
+            try:
+                time.sleep(5)
+            except _OutOfTime:
+                swallowed.append(True)
+            time.sleep(5)
+    assert swallowed and time.monotonic() - started < 2
+
+
+def test_a_formula_too_deep_for_the_compiler_is_evaluated_by_walking_it(monkeypatch):
+    # Reference: sympy's own substitution (Expr.subs + evalf) at the same points.
+    from dcnet.analysis import symbolic
+
+    x, y, z = sympy.symbols("x y z")
+    expr = sympy.Rational(3, 7) * (x + 2 * y * z**2) ** 3 / (1 + x * y - z) + sympy.sqrt(x) * y**-2
+
+    def too_deep(*args, **kwargs):
+        raise RecursionError("maximum recursion depth exceeded during compilation")
+
+    monkeypatch.setattr(sympy, "lambdify", too_deep)
+    f = symbolic._numeric_function([x, y, z], expr)
+    assert isinstance(f, symbolic._TreeEvaluator)
+    rng = np.random.default_rng(7)
+    pts = rng.uniform(0.5, 2.0, size=(3, 6))
+    got = f(*pts)
+    want = [float(expr.subs({x: a, y: b, z: c})) for a, b, c in pts.T]
+    np.testing.assert_allclose(got, want, rtol=1e-12)
+
+
 def test_too_many_symbols():
     net = dcnet.parse(_grid(6))
     keep = [el.name + ".r" for el in net.elements if el.kind == "resistor"]
