@@ -31,6 +31,9 @@ __all__ = ["NewtonResult", "newton_solve", "VTOL", "ITOL", "MAX_ITER"]
 VTOL = 1e-9  # volts, plus the same relative to the largest potential
 ITOL = 1e-9  # relative to the current scale
 MAX_ITER = 60
+#: conductance, relative to the largest in the circuit, that stands in for a voltage-form
+#: nonlinear branch for one step when the voltage forms together are contradictory
+STIFF = 1e6
 
 
 @dataclasses.dataclass
@@ -148,10 +151,17 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
         model = _model(bt, groups, v, i, scale)
         changed = int(sum(int((m0 != grp.mode).sum()) for m0, grp in zip(modes_before, groups)))
         system = _assemble(model, shunt)
-        try:
-            x_new, factor = solve_system(system)
-        except NumericalError:
-            x_new = np.full(system.size, np.nan)
+        x_new, factor = _try_solve(system)
+        stiff = model.is_voltage & bt.nonlinear
+        if not np.all(np.isfinite(x_new)) and stiff.any():
+            # Nonlinear elements that switched to voltage form at once can close a loop of
+            # contradictory voltages (ideal diodes of different drops in parallel, both forward
+            # biased): take this one step with them as stiff conductances instead, which shows
+            # which of them must switch back, and never count the step as settled.
+            model = _stiffened(model, stiff, STIFF * max(float(np.abs(bt.g).max(initial=0.0)), 1e-300))
+            system = _assemble(model, shunt)
+            x_new, factor = _try_solve(system)
+            changed += int(stiff.sum())
         if not np.all(np.isfinite(x_new)):
             history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": changed})
             return False, state
@@ -182,6 +192,23 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
         if changed == 0 and step <= VTOL * vscale and res <= good_enough:
             return True, state
     return False, state
+
+
+def _try_solve(system):
+    try:
+        return solve_system(system)
+    except NumericalError:
+        return np.full(system.size, np.nan), None
+
+
+def _stiffened(model: BranchTable, mask: np.ndarray, g_stiff: float) -> BranchTable:
+    """The model with the voltage-form branches in ``mask`` as conductances ``g_stiff`` behind
+    the same EMF (a Norton form with a very small resistance)."""
+    is_v, g, c = model.is_voltage.copy(), model.g.copy(), model.c.copy()
+    is_v[mask] = False
+    g[mask] = g_stiff
+    c[mask] = -model.e[mask] * g_stiff
+    return dataclasses.replace(model, is_voltage=is_v, g=g, c=c)
 
 
 def _assemble(model: BranchTable, shunt: float):

@@ -91,6 +91,21 @@ def test_ideal_diodes_pick_the_higher_bank():
     assert sol.current("L") == pytest.approx(i, rel=1e-9)
 
 
+@pytest.mark.parametrize("order", ["low first", "high first"])
+def test_parallel_ideal_diodes_of_different_drops_leave_only_the_lower_conducting(order):
+    # Constant-voltage-drop diode model (from memory, any electronics text): two ideal diodes in
+    # parallel cannot both conduct with different drops; the lower drop clamps the voltage and
+    # the other is reverse- or zero-biased below its drop, so it carries no current.
+    # Both switch on together in the first iteration, which once left a singular system.
+    low, high = "diode DL a gnd drop=0.1V", "diode DH a gnd drop=0.93V"
+    pair = [low, high] if order == "low first" else [high, low]
+    sol = solve("cell B a gnd emf=60V r=0.175Ohm\n" + "\n".join(pair) + "\n")
+    assert sol.state("DL") == "conducting" and sol.state("DH") == "blocked"
+    assert sol.voltage("DL") == pytest.approx(0.1, abs=1e-12)
+    assert sol.current("DL") == pytest.approx((60 - 0.1) / 0.175, rel=1e-9)
+    assert abs(sol.current("DH")) < 1e-9
+
+
 def test_junction_diode_obeys_the_shockley_law():
     # Shockley diode equation with Vt = kT/q (SI 2019 exact constants), checked at the solution
     sol = solve("cell B b gnd emf=5V r=10mOhm\ndiode D b x is=1e-12A n=1.2 temp=25degC\nresistor R x gnd r=10Ohm\n")
