@@ -57,7 +57,8 @@ def _pattern(bt: BranchTable, g: np.ndarray, c: np.ndarray):
     row, N = _rows(bt)
     ra, rb = row[bt.a], row[bt.b]
     gnz = (g != 0).any(axis=0) if g.ndim == 2 else g != 0
-    adm = np.flatnonzero(~bt.is_voltage & gnz)
+    loop = bt.a == bt.b  # left out as mna.triplets leaves them out
+    adm = np.flatnonzero(~bt.is_voltage & gnz & ~loop)
     pa, pb = ra[adm], rb[adm]
     vb = np.flatnonzero(bt.solved_voltage)
     k = np.arange(N, N + len(vb), dtype=np.int64)
@@ -70,7 +71,7 @@ def _pattern(bt: BranchTable, g: np.ndarray, c: np.ndarray):
     keep = (I >= 0) & (J >= 0)
     I, J, src, sign = I[keep], J[keep], src[keep], sign[keep]
     cur_nz = (c != 0).any(axis=0) if c.ndim == 2 else c != 0
-    nz = np.flatnonzero(~bt.is_voltage & cur_nz)
+    nz = np.flatnonzero(~bt.is_voltage & cur_nz & ~loop)
     sa, sb = ra[nz], rb[nz]
     # mna subtracts c at the first node for every branch, then adds it at the second
     z_tgt = np.concatenate([sa[sa >= 0], sb[sb >= 0]])

@@ -371,7 +371,7 @@ def _rhs(model, system) -> np.ndarray:
     row = system.row_of_node
     N = system.n_node_rows
     z = np.zeros(system.size)
-    cur = np.where(model.is_voltage, 0.0, model.c)
+    cur = np.where(model.is_voltage | (model.a == model.b), 0.0, model.c)  # self-loops as in mna.triplets
     nz = np.flatnonzero(cur)
     ra, rb = row[model.a[nz]], row[model.b[nz]]
     sc = cur[nz]

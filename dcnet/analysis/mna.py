@@ -66,7 +66,11 @@ def triplets(bt, g=None, c=None, e=None):
     N = n - 1
     ra, rb = row[bt.a], row[bt.b]
 
-    adm = ~bt.is_voltage & np.asarray(g != 0, dtype=bool)  # (object arrays compare entry by entry)
+    # a branch from a node to itself stamps +g and -g on one diagonal entry (and -c, +c on one
+    # right-hand side entry): nothing in exact arithmetic, but in floating point a large g
+    # there swallows the small conductances of that node (a diode's leak), so it is left out
+    loop = bt.a == bt.b
+    adm = ~bt.is_voltage & np.asarray(g != 0, dtype=bool) & ~loop  # (object arrays compare entry by entry)
     pa, pb, pg = ra[adm], rb[adm], g[adm]
     vb = np.flatnonzero(bt.solved_voltage)
     k = np.arange(N, N + len(vb), dtype=np.int64)
@@ -81,7 +85,7 @@ def triplets(bt, g=None, c=None, e=None):
     symbolic = object in (np.asarray(c).dtype, np.asarray(e).dtype)  # sympy entries (analysis/symbolic.py)
     z = np.zeros(N + len(vb), dtype=object if symbolic else float)
     cur = np.where(bt.is_voltage, 0.0, c)
-    nz = np.asarray(cur != 0, dtype=bool)
+    nz = np.asarray(cur != 0, dtype=bool) & ~loop
     if nz.any():
         sa, sb, sc = ra[nz], rb[nz], cur[nz]
         np.subtract.at(z, sa[sa >= 0], sc[sa >= 0])

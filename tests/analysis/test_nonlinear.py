@@ -167,3 +167,15 @@ def test_random_nonlinear_networks_converge_and_balance(text):
         if el.kind == "load" and "power" in el.values and sol.state(el.name) == "drawing":
             assert sol.power(el.name) == pytest.approx(el.values["power"], rel=1e-6)
     assert np.all(np.isfinite(sol.i))
+
+
+def test_a_self_loop_does_not_swallow_a_diode_leak():
+    # Kirchhoff's current law: a branch from a node to itself takes no current out of it, so
+    # node b hangs on the blocked diode's documented 1 pS leak alone and sits at a's potential.
+    # (A 1 MS self-loop stamped +g and -g on b's diagonal used to round the leak away: a
+    # singular matrix and a convergence failure.)
+    sol = solve("source S a gnd emf=12V r=1Ohm\nload L a gnd r=11Ohm\ndiode D a b drop=0.7V\nresistor LOOP b b r=1uOhm\n")
+    assert sol.voltage("D") == pytest.approx(0.0, abs=1e-9)
+    assert sol.current("D") == pytest.approx(0.0, abs=1e-12)
+    assert sol.current("LOOP") == 0.0
+    assert sol.voltage("L") == pytest.approx(11.0, rel=1e-12)  # divider 12 V * 11 / (1 + 11)
