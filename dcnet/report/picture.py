@@ -116,6 +116,7 @@ class Layout:
     bank_nodes: set[str] = field(default_factory=set)
     bank_elements: dict[str, str] = field(default_factory=dict)  # element -> short label inside its bank
     quiet: set[str] = field(default_factory=set)  # nodes drawn without their name (inside columns)
+    wires: dict[str, list] = field(default_factory=dict)  # node -> polylines of plain wire round a bank
 
 
 def _bank_chains(net, sol):
@@ -353,7 +354,13 @@ def layout(sol) -> Layout:
         for a, b, els, inner, off, vertical in placed
         if not vertical and a in level_of and b in level_of
     ]
-    x, y = _stress(net, index, y, band_lo, band_hi, held, derived, x_fixed, project, keep_out, upright, spans)
+    # a node whose parallel runs spread sideways keeps them all outside a bank's frame
+    reach = np.zeros(n)
+    for a, b, els, inner, off, vertical in placed:
+        if vertical and off:
+            for nd in (a, b):
+                reach[index[nd]] = max(reach[index[nd]], abs(off))
+    x, y = _stress(net, index, y, band_lo, band_hi, held, derived, x_fixed, project, keep_out, upright, spans, reach)
     pos = {nd: (float(x[index[nd]]), float(y[index[nd]])) for nd in nodes}
 
     # element ends: parallel vertical runs meet their end nodes on a bus bar
@@ -384,7 +391,102 @@ def layout(sol) -> Layout:
         blk["y0"] = min(pos[q[0]][1] for q in seqs)
         blk["y1"] = max(pos[q[-1][1]][1] for q in seqs)
     quiet = {nd for a, b, els, inner, off, vertical in placed if vertical and off for nd in inner}
-    return Layout(pos, ends, bars, blocks, bank_nodes, bank_elements, quiet)
+    wires = _round_banks(net, placed, blocks, pos, ends, bank_nodes, bank_elements)
+    return Layout(pos, ends, bars, blocks, bank_nodes, bank_elements, quiet, wires)
+
+
+#: layout units: how far outside a bank frame the wires that go round it run
+_ABOVE, _BELOW, _RIGHT, _LEFT, _LANE = 0.85, 0.55, 1.6, 0.95, 0.9
+
+
+def _round_banks(net, placed, blocks, pos, ends, bank_nodes, bank_elements):
+    """Chains outside a bank that would be drawn across its frame (the leads of a bank tapped
+    at opposite ends, a load between its own terminals) go round it instead: a wire leaves
+    the bank node straight up (top row) or down (bottom row) to a lane outside the frame and
+    runs along it to a column beside the bank, where the chain's elements are drawn.
+    Moves the chains' inner nodes and element ends; returns node -> polylines (layout units)."""
+    wires: dict[str, list] = {}
+    lanes: dict[tuple[int, str], int] = {}
+
+    def block_of(nd):
+        if nd not in bank_nodes:
+            return None
+        x, y = pos[nd]
+        for k, blk in enumerate(blocks):
+            if blk["x0"] - 1e-6 <= x <= blk["x1"] + 1e-6 and blk["y0"] - 1e-6 <= y <= blk["y1"] + 1e-6:
+                return k
+        return None
+
+    def crosses(seg_a, seg_b, blk):
+        (xa, ya), (xb, yb) = seg_a, seg_b
+        for t in np.linspace(0.05, 0.95, 19):
+            x, y = xa + (xb - xa) * t, ya + (yb - ya) * t
+            if blk["x0"] - 0.3 < x < blk["x1"] + 0.3 and blk["y0"] + 0.15 < y < blk["y1"] - 0.15:
+                return True
+        return False
+
+    for a, b, els, inner, _off, _vertical in placed:
+        if any(net.elements[k].name in bank_elements for k in els):
+            continue
+        ka, kb = block_of(a), block_of(b)
+        k = ka if ka is not None else kb
+        if k is None or (ka is not None and kb is not None and ka != kb):
+            continue
+        blk = blocks[k]
+        if not any(crosses(*ends[net.elements[j].name], blk) for j in els):
+            continue
+
+        def row(nd):  # "top", "bottom" or None (a node inside the block, or outside it)
+            if block_of(nd) != k:
+                return None
+            y = pos[nd][1]
+            return "top" if abs(y - blk["y1"]) < 1e-6 else "bottom" if abs(y - blk["y0"]) < 1e-6 else "mid"
+
+        ra, rb = row(a), row(b)
+        if "mid" in (ra, rb):
+            continue  # a lead to a string's middle: left as drawn
+        lane_y = {"top": blk["y1"] + _ABOVE, "bottom": blk["y0"] - _BELOW}
+        outside = [nd for nd, r in ((a, ra), (b, rb)) if r is None]
+        if ra and rb and ra == rb:  # both on one row: run along its lane
+            col = None
+        else:
+            if outside:
+                side = "right" if pos[outside[0]][0] > (blk["x0"] + blk["x1"]) / 2 else "left"
+            else:  # the nearer side (tap at the same end), else the emptier one
+                centre, half = (blk["x0"] + blk["x1"]) / 2, (blk["x1"] - blk["x0"]) / 2
+                lean = (pos[a][0] + pos[b][0]) / 2 - centre
+                others = [xy[0] for nd, xy in pos.items() if nd not in bank_nodes and nd not in inner]
+                n_left = sum(x < blk["x0"] for x in others)
+                n_right = sum(x > blk["x1"] for x in others)
+                if abs(lean) > 0.25 * half:
+                    side = "left" if lean < 0 else "right"
+                else:
+                    side = "left" if n_left < n_right else "right"
+            used = lanes.get((k, side), 0)
+            lanes[(k, side)] = used + 1
+            col = blk["x1"] + _RIGHT + used * _LANE if side == "right" else blk["x0"] - _LEFT - used * _LANE
+
+        def port(nd, r):
+            if r is None:
+                return pos[nd]
+            x, y = pos[nd]
+            ly = lane_y[r]
+            line = [(x, y), (x, ly)] + ([(col, ly)] if col is not None else [])
+            wires.setdefault(nd, []).append(line)
+            return line[-1]
+
+        pa, pb = port(a, ra), port(b, rb)
+        steps = np.cumsum([_step(net.elements[j].kind) for j in els])
+        f = steps / steps[-1]
+        pts = [pa] + [(pa[0] + (pb[0] - pa[0]) * t, pa[1] + (pb[1] - pa[1]) * t) for t in f[:-1]] + [pb]
+        for nd, xy in zip(inner, pts[1:-1]):
+            pos[nd] = (float(xy[0]), float(xy[1]))
+        seq = [a] + inner + [b]
+        for j, kk in enumerate(els):
+            el = net.elements[kk]
+            p, q = pts[j], pts[j + 1]
+            ends[el.name] = (p, q) if el.nodes == (seq[j], seq[j + 1]) else (q, p)
+    return wires
 
 
 def _stress(
@@ -400,6 +502,7 @@ def _stress(
     keep_out=(),
     upright=(),
     spans=(),
+    reach=None,
     iterations: int = 240,
 ):
     """Stress majorisation: x free (held nodes stay, derived ones follow their chain), y inside
@@ -410,6 +513,7 @@ def _stress(
     n = len(index)
     if n == 0:
         return np.zeros(0), y0
+    reach = np.zeros(n) if reach is None else reach
     a = np.array([index[el.nodes[0]] for el in net.elements])
     b = np.array([index[el.nodes[1]] for el in net.elements])
     wts = np.array([_step(el.kind) for el in net.elements])
@@ -468,8 +572,9 @@ def _stress(
                     elif free[ia]:
                         x[ia] -= push
             for xa, xb in keep_out:  # nothing outside a bank inside its frame
-                inside = free & (x > xa) & (x < xb)
-                x = np.where(inside, np.where(x - xa < xb - x, xa, xb), x)
+                lo_x, hi_x = xa - reach, xb + reach
+                inside = free & (x > lo_x) & (x < hi_x)
+                x = np.where(inside, np.where(x - lo_x < hi_x - x, lo_x, hi_x), x)
             yy = np.where(movable_y, np.clip(ny, lo, hi), yy)
             project(x, yy)
         dist = np.sqrt((x[:, None] - x[None, :]) ** 2 + (yy[:, None] - yy[None, :]) ** 2)
@@ -566,8 +671,9 @@ def scene(sol, title: str | None = None) -> Scene:
     net = sol.netlist
     lay = layout(sol)
     status = element_status(sol)
-    xs = [p[0] for p in lay.pos.values()] or [0.0]
-    ys = [p[1] for p in lay.pos.values()] or [0.0]
+    corners = [q for lines in lay.wires.values() for line in lines for q in line]
+    xs = [p[0] for p in lay.pos.values()] + [q[0] for q in corners] or [0.0]
+    ys = [p[1] for p in lay.pos.values()] + [q[1] for q in corners] or [0.0]
     xmin, _xmax, _ymin, ymax = min(xs), max(xs), min(ys), max(ys)
     head = title if title is not None else (net.title or "")
     top_pad = (64.0 if head else 34.0) + (22.0 if lay.banks else 0.0)
@@ -601,19 +707,33 @@ def scene(sol, title: str | None = None) -> Scene:
                 r=8,
             )
         )
+        up = [px(line[0])[0] for lines in lay.wires.values() for line in lines if line[1][1] > line[0][1]]
+        up = [x for x in up if xa - 40 <= x <= xb + 40]
+        tx = max(up) + 8 if up else xa - 36
         prims.append(
             Prim(
                 "text",
-                [(xa - 36, ya - 36)],
+                [(tx, ya - 36)],
                 text=f"bank {blk['name']}: {info['series']}s{info['parallel']}p, tap {info['tap']}",
                 size=11.5,
                 weight="bold",
                 fill=_INK,
             )
         )
+        down = [px(line[0])[0] for lines in lay.wires.values() for line in lines if line[1][1] < line[0][1]]
         for j in range(blk["strings"]):
             sx, _ = px((blk["x0"] + j * 1.25, blk["y1"]))
-            prims.append(Prim("text", [(sx, yb + 12)], text=f"s{j + 1}", size=10, anchor="middle", fill=_MUTED))
+            clash = any(abs(sx - x) < 1 for x in down)  # a wire leaves this column downwards
+            prims.append(
+                Prim(
+                    "text",
+                    [(sx - 5 if clash else sx, yb + 12)],
+                    text=f"s{j + 1}",
+                    size=10,
+                    anchor="end" if clash else "middle",
+                    fill=_MUTED,
+                )
+            )
 
     # elements drawn between the same two points are bent apart
     pairs: dict[tuple, list[int]] = {}
@@ -638,6 +758,13 @@ def scene(sol, title: str | None = None) -> Scene:
         prims.append(
             Prim("line", [(xa - 3, ya), (xb + 3, ya)], stroke=_INK, width=4.0, cls="bar", attrs={"data-node": nd})
         )
+
+    # plain wires from a bank's row to where its outside chains run
+    for nd, lines in lay.wires.items():
+        for line in lines:
+            pts = [px(q) for q in line]
+            for q0, q1 in zip(pts, pts[1:]):
+                prims.append(Prim("line", [q0, q1], stroke=_INK, width=2.2, cls="stub", attrs={"data-node": nd}))
 
     legend_kinds: dict[str, None] = {}
     requests: list = []
@@ -721,14 +848,16 @@ def scene(sol, title: str | None = None) -> Scene:
         ):
             prims.append(Prim("text", [(x - 6, y - 8)], text=nd, size=9.5, anchor="end", fill=_MUTED, cls="nodename"))
         if nd == ground:
+            # the ground mark hangs below the node, or beside it when a wire leaves downwards
+            gx = x + 16 if any(line[1][1] < line[0][1] for line in lay.wires.get(nd, ())) else x
             prims.append(
-                Prim("polygon", [(x - 7, y + 8), (x + 7, y + 8), (x, y + 16)], fill="none", stroke=_INK, width=1.3)
+                Prim("polygon", [(gx - 7, y + 8), (gx + 7, y + 8), (gx, y + 16)], fill="none", stroke=_INK, width=1.3)
             )
-            prims.append(Prim("text", [(x + 10, y + 17)], text="0 V", size=9, fill=_MUTED))
+            prims.append(Prim("text", [(gx + 10, y + 17)], text="0 V", size=9, fill=_MUTED))
 
     prims += _place_labels(requests, P, prims)
-    xs_px = [p[0] for p in P.values()]
-    ys_px = [p[1] for p in P.values()]
+    xs_px = [p[0] for p in P.values()] + [px(q)[0] for q in corners]
+    ys_px = [p[1] for p in P.values()] + [px(q)[1] for q in corners]
     width = max(max(xs_px) + _MARGIN + 150, 520.0)
     height = max(ys_px) + _MARGIN
     legend, lh = _legend(width, height, imax, list(legend_kinds), {c for c, _ in status.values()})
@@ -871,7 +1000,7 @@ def _place_labels(requests, P, prims):
             taken.append(_text_box(p.pts[0][0], p.pts[0][1], p.text, p.size, p.anchor))
     samples = []
     for p in prims:
-        if p.cls in ("wire", "bar"):
+        if p.cls in ("wire", "bar", "stub"):
             if p.kind == "line":
                 (x1, y1), (x2, y2) = p.pts
                 samples += [(x1 + (x2 - x1) * t / 12, y1 + (y2 - y1) * t / 12) for t in range(1, 12)]
