@@ -11,8 +11,9 @@ When plain Newton does not settle, two fallbacks follow: source stepping (every 
 scaled from a tenth up to its full value, each answer starting the next) and then a
 conductance ramp (a shunt from every node to ground, reduced decade by decade to zero).
 Failure to converge is an error naming the elements that did not settle, with the
-iteration history; constant-power demands beyond what the network can deliver are
-reported with their figures instead.
+iteration history; constant-power demands beyond what the network can deliver, and ideal
+current sources forcing more current through current-limited sources than their limits
+allow, are reported with their figures instead.
 """
 
 from __future__ import annotations
@@ -234,6 +235,7 @@ def newton_solve(bt: BranchTable) -> NewtonResult:
     undervoltage) and the solve starts again.
     """
     history: list[dict] = []
+    _check_limited_cuts(bt)
     only_power = all(kind == "load" for kind, (pos, _) in bt.groups.items() if bt.nonlinear[pos].any())
     if only_power:  # with no other nonlinear element the Thevenin figures are exact up front
         _check_power_demands(bt)
@@ -371,3 +373,150 @@ def _check_power_demands(bt: BranchTable, frozen=None, dropped: set[int] = froze
                 hint="lower the demand, strengthen the supply (lower resistance, higher EMF), or give the load vmin= so it drops out as a real inverter would",
             )
     return to_drop
+
+
+def _check_limited_cuts(bt: BranchTable) -> None:
+    """Refuse ideal current sources that force more current through current-limited sources
+    than their limits allow, naming the cut with the figures.
+
+    A current-limited source's passive current is at least ``-imax`` (it delivers at most
+    ``imax``; it may absorb any current while holding). Contract every branch that can carry
+    any current (resistances, voltage-form branches, diodes, constant-power loads): what is
+    left joins the contracted nodes by ideal current sources (fixed currents) and limited
+    sources. Kirchhoff's current law over every set of contracted nodes, with each limited
+    source within its bound, is a flow problem on the limited sources (``j = i + imax >= 0``
+    flows from the first node to the second); it is feasible exactly when a maximum flow meets
+    every node's demand, and when it is not, the nodes reachable in the residual graph are a
+    set that the fixed sources feed with more than its limited sources can carry away.
+    """
+    if "source" not in bt.groups:
+        return
+    pos, cols = bt.groups["source"]
+    lim = ~np.isnan(cols["imax"])
+    if not lim.any():
+        return
+    limited = np.zeros(bt.n_elements, dtype=bool)
+    limited[pos[lim]] = True
+    imax = np.zeros(bt.n_elements)
+    imax[pos[lim]] = cols["imax"][lim]
+    current_only = ~bt.nonlinear & ~bt.is_voltage & (bt.g == 0)  # current sources and open branches
+    fixed = current_only & (bt.c != 0)
+    free = ~limited & ~current_only
+    parent = list(range(bt.n_nodes))
+
+    def root(x: int) -> int:
+        while parent[x] != x:
+            parent[x] = parent[parent[x]]
+            x = parent[x]
+        return x
+
+    for k in np.flatnonzero(free):
+        ra, rb = root(int(bt.a[k])), root(int(bt.b[k]))
+        if ra != rb:
+            parent[ra] = rb
+    top = np.array([root(x) for x in range(bt.n_nodes)], dtype=np.int64)
+    A, B = top[bt.a], top[bt.b]
+    crossing = A != B
+    fixed &= crossing
+    limited &= crossing
+    if not limited.any():
+        return
+    # d[u]: what must leave contracted node u as flow j on the limited sources
+    d: dict[int, float] = {}
+    for k in np.flatnonzero(fixed):  # passive current c from a to b
+        d[int(B[k])] = d.get(int(B[k]), 0.0) + float(bt.c[k])
+        d[int(A[k])] = d.get(int(A[k]), 0.0) - float(bt.c[k])
+    arcs: dict[int, set[int]] = {}
+    for k in np.flatnonzero(limited):
+        d[int(A[k])] = d.get(int(A[k]), 0.0) + imax[k]
+        d[int(B[k])] = d.get(int(B[k]), 0.0) - imax[k]
+        arcs.setdefault(int(A[k]), set()).add(int(B[k]))
+    reach = _flow_shortfall(d, arcs)
+    if reach is None:
+        return
+    inside = np.isin(top, list(reach))
+    into = np.flatnonzero(fixed & (inside[bt.b] != inside[bt.a]))
+    forced = float(sum(bt.c[k] if inside[bt.b[k]] else -bt.c[k] for k in into))
+    outlets = np.flatnonzero(limited & inside[bt.b] & ~inside[bt.a])
+    limit = float(imax[outlets].sum())
+    scale = max(abs(forced), limit, 1e-300)
+    if forced - limit <= 1e-9 * scale:
+        return  # within round-off of the limit: leave it to the solver
+    from ..topology import _names
+
+    src = [bt.names[k] for k in into]
+    lim_names = [bt.names[k] for k in outlets]
+    # name the smaller side of the cut (of two alike, the one without ground)
+    if (int(inside.sum()), bool(inside[bt.ground])) < (int((~inside).sum()), not inside[bt.ground]):
+        side, way, then = np.flatnonzero(inside), "into", "leave only through"
+    else:
+        side, way, then = np.flatnonzero(~inside), "out of", "be fed only through"
+    nodes = [bt.node_names[n] for n in side]
+    if lim_names:
+        tail = (
+            f"which can {then} the current-limited source(s) {_names(lim_names)}, delivering at most "
+            f"{limit:.4g} A (the sum of their imax)"
+        )
+    else:
+        tail = "and no current-limited source crosses to carry it"
+    names = tuple(lim_names + src)
+    raise NoOperatingPointError(
+        f"the current source(s) {_names(src)} force {forced:.4g} A {way} node(s) {_names(nodes)} (with what is tied to "
+        f"them), {tail}: no operating point exists (Kirchhoff's current law at that cut)",
+        element=names[0],
+        culprits=names,
+        hint="raise the current limit (imax) of the limited source(s), lower the forced current, or give the current another path",
+    )
+
+
+def _flow_shortfall(d: dict[int, float], arcs: dict[int, set[int]]) -> set[int] | None:
+    """Maximum flow from the nodes with ``d > 0`` to those with ``d < 0`` along uncapacitated
+    arcs (augmenting shortest paths). Returns None when every demand is met, otherwise the
+    nodes reachable from the surplus in the residual graph."""
+    SRC, SNK = "s", "t"
+    cap: dict = {}
+    adj: dict = {}
+
+    def edge(u, v, c):
+        cap[(u, v)] = cap.get((u, v), 0.0) + c
+        cap.setdefault((v, u), 0.0)
+        adj.setdefault(u, set()).add(v)
+        adj.setdefault(v, set()).add(u)
+
+    total = 0.0
+    for u, x in d.items():
+        if x > 0:
+            edge(SRC, u, x)
+            total += x
+        elif x < 0:
+            edge(u, SNK, -x)
+    for u, vs in arcs.items():
+        for v in vs:
+            edge(u, v, float("inf"))
+    if total <= 0:
+        return None
+    tol = 1e-12 * total
+    flow = 0.0
+    while True:
+        prev = {SRC: None}
+        queue = [SRC]
+        for u in queue:
+            for v in adj.get(u, ()):
+                if v not in prev and cap[(u, v)] > tol:
+                    prev[v] = u
+                    queue.append(v)
+        if SNK not in prev:
+            break
+        push, v = float("inf"), SNK
+        while prev[v] is not None:
+            push = min(push, cap[(prev[v], v)])
+            v = prev[v]
+        v = SNK
+        while prev[v] is not None:
+            cap[(prev[v], v)] -= push
+            cap[(v, prev[v])] += push
+            v = prev[v]
+        flow += push
+    if total - flow <= 1e-9 * total:
+        return None
+    return {u for u in prev if u not in (SRC, SNK)}

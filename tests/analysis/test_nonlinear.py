@@ -179,3 +179,34 @@ def test_a_self_loop_does_not_swallow_a_diode_leak():
     assert sol.current("D") == pytest.approx(0.0, abs=1e-12)
     assert sol.current("LOOP") == 0.0
     assert sol.voltage("L") == pytest.approx(11.0, rel=1e-12)  # divider 12 V * 11 / (1 + 11)
+
+
+@pytest.mark.parametrize("imax, n_sources", [(10.0, 1), (4.0, 2)])
+def test_current_sources_forcing_more_than_the_limits_have_no_operating_point(imax, n_sources):
+    # Kirchhoff's current law at the cut {chargers, L} around node a: the constant-current load
+    # takes 25 A out of a, and only the current-limited chargers can feed a, at most imax each
+    chargers = "".join(f"source C{k} a gnd emf=14V r=10mOhm imax={imax}A\n" for k in range(n_sources))
+    with pytest.raises(E.NoOperatingPointError) as info:
+        solve(chargers + "load L a gnd current=25A\n")
+    msg = info.value.message
+    assert "25 A" in msg and f"{imax * n_sources:.4g} A" in msg
+    assert set(info.value.culprits) == {"L"} | {f"C{k}" for k in range(n_sources)}
+    assert info.value.line == 1  # the first charger's line
+
+
+def test_a_limited_source_within_a_cut_of_current_sources_still_solves():
+    # Kirchhoff's current law at node a with two 6 A limits against a 10 A load: each charger
+    # holds (14 V behind 10 mOhm) and they share the 10 A equally, 5 A each
+    sol = solve("source C0 a gnd emf=14V r=10mOhm imax=6A\nsource C1 a gnd emf=14V r=10mOhm imax=6A\nload L a gnd current=10A\n")
+    assert sol.current("C0") == pytest.approx(-5.0, rel=1e-9)
+    assert sol.voltage("L") == pytest.approx(14.0 - 5.0 * 0.01, rel=1e-9)
+
+
+def test_a_resistor_across_the_cut_gives_the_excess_a_path():
+    # not a cut of current sources: the 15 A the 10 A charger cannot feed comes up through R,
+    # so V(a) = -15 A * 2 Ohm = -30 V by Ohm's law (ideal current source model: the load's 25 A
+    # flows whatever its voltage)
+    sol = solve("source C a gnd emf=14V r=10mOhm imax=10A\nload L a gnd current=25A\nresistor R a gnd r=2Ohm\n")
+    assert sol.current("C") == pytest.approx(-10.0, rel=1e-12)
+    assert sol.voltage("R") == pytest.approx(-30.0, rel=1e-9)
+    assert sol.state("C") == "current-limited"

@@ -84,6 +84,7 @@ MISTAKES = [
     ("part c1 cell emf=2V r=1mOhm\nbank B p n series=2 parallel=2 cell=c1 s3.c1.r=2mOhm\n", E.InputError, 2, 40, "strings s1..s2 and cells c1..c2", None),
     ("part c1 cell emf=2V r=1mOhm\nbank B p n series=2 parallel=2 cell=c1 s1.c1.rr=2mOhm\n", E.UnknownNameError, 2, 40, "no property 'rr'", None),
     ("part c1 cell emf=2V r=1mOhm\nbank B p n series=2 parallel=2 cell=c1 tap=middle\n", E.UnknownNameError, 2, 44, "'middle' is not a known tap", "centre"),
+    ("source C a gnd emf=14V r=10mOhm imax=10A\nload L a gnd current=25A\nground gnd\n", E.NoOperatingPointError, None, None, "fed only through the current-limited source(s) C", "raise the current limit"),
     ("", E.InputError, None, None, "no elements", None),
     ("# only a comment\n", E.InputError, None, None, "no elements", None),
 ]
