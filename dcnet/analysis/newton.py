@@ -86,11 +86,13 @@ def _model(bt: BranchTable, groups: list[_Group], v: np.ndarray, i: np.ndarray, 
         lin = ~bt.nonlinear
         c[lin] *= scale
         e[lin] *= scale
+    # the round-off of the iterate's currents, which no current switching rule should act on
+    itol = ITOL * float(np.abs(i[np.isfinite(i)]).max(initial=0.0))
     for grp in groups:
         cols = grp.cols
         if scale != 1.0:
             cols = _scaled(grp, scale)
-        br, grp.mode, grp.prev = grp.kind.companion(cols, v[grp.pos], i[grp.pos], grp.mode, grp.prev)
+        br, grp.mode, grp.prev = grp.kind.companion(cols, v[grp.pos], i[grp.pos], grp.mode, grp.prev, itol=itol)
         is_v[grp.pos], g[grp.pos], c[grp.pos], e[grp.pos] = br.is_voltage, br.g, br.c, br.e
     return dataclasses.replace(bt, is_voltage=is_v, g=g, c=c, e=e)
 

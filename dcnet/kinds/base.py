@@ -143,12 +143,14 @@ class Kind:
         n = len(next(iter(cols.values()))) if cols else 0
         return np.zeros(n, dtype=np.int64)
 
-    def companion(self, cols, v: np.ndarray, i: np.ndarray, mode: np.ndarray, prev: np.ndarray):
+    def companion(self, cols, v: np.ndarray, i: np.ndarray, mode: np.ndarray, prev: np.ndarray, itol: float = 0.0):
         """Linear model at the operating point: returns (Branches, new mode, voltage used).
 
         ``v``/``i`` are the latest iterate's branch voltage and current, ``prev`` the
         voltage the previous model was built at; a kind may limit the step (junctions) and
         switch modes (piecewise-linear kinds). The returned voltage is what it linearised at.
+        ``itol`` is the round-off of the iterate's currents (amperes): a current switching
+        rule does not switch on a current within ``itol`` of its threshold.
         """
         raise NotImplementedError
 

@@ -58,14 +58,16 @@ class Diode(Kind):
     def nonlinear_mask(self, cols):
         return np.ones(len(cols["drop"]), dtype=bool)
 
-    def companion(self, cols, v, i, mode, prev):
+    def companion(self, cols, v, i, mode, prev, itol=0.0):
         drop, r = cols["drop"], cols["r"]
         junction = ~np.isnan(cols["is"])
         goff = self._goff(cols)
         mode = mode.copy()
         pwl = ~junction
         mode[pwl & (mode == BLOCKED) & (v > drop)] = CONDUCTING
-        mode[pwl & (mode == CONDUCTING) & (i < 0)] = BLOCKED
+        # a conducting diode blocks when its current turns negative beyond the round-off (a
+        # diode that carries nothing, on a branch with no return path, stays where it is)
+        mode[pwl & (mode == CONDUCTING) & (i < -itol)] = BLOCKED
         ideal = pwl & ~(r > 0)
         cond = pwl & (mode == CONDUCTING)
         with np.errstate(divide="ignore", invalid="ignore"):

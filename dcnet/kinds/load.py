@@ -39,7 +39,7 @@ class Load(Kind):
     def nonlinear_mask(self, cols):
         return ~np.isnan(cols["power"])
 
-    def companion(self, cols, v, i, mode, prev):
+    def companion(self, cols, v, i, mode, prev, itol=0.0):
         P, vmin = cols["power"], cols["vmin"]
         mode = mode.copy()
         drop = (mode == ON) & ~np.isnan(vmin) & (v < vmin)

@@ -27,12 +27,12 @@ class Source(Kind):
     def nonlinear_mask(self, cols):
         return ~np.isnan(cols["imax"])
 
-    def companion(self, cols, v, i, mode, prev):
+    def companion(self, cols, v, i, mode, prev, itol=0.0):
         r, emf, imax = cols["r"], cols["emf"], cols["imax"]
         ideal = ~(r > 0)
         mode = mode.copy()
         # hold -> limit when holding would deliver more than imax (passive current below -imax)
-        mode[(mode == HOLD) & (i < -imax * (1 + 1e-12))] = LIMIT
+        mode[(mode == HOLD) & (i < -imax * (1 + 1e-12) - itol)] = LIMIT
         # limit -> hold when the terminal voltage would rise above what holding gives at imax
         knee = emf - np.where(ideal, 0.0, imax * np.nan_to_num(r))
         mode[(mode == LIMIT) & (v > knee + 1e-12 * np.abs(emf))] = HOLD

@@ -210,3 +210,15 @@ def test_a_resistor_across_the_cut_gives_the_excess_a_path():
     assert sol.current("C") == pytest.approx(-10.0, rel=1e-12)
     assert sol.voltage("R") == pytest.approx(-30.0, rel=1e-9)
     assert sol.state("C") == "current-limited"
+
+
+def test_a_diode_on_a_dead_end_settles_in_a_half_teravolt_network():
+    # Kirchhoff's current law: the dead end x-y carries no current, so D sits on its drop with
+    # no current (the point where both of its modes hold). At -4.75e11 V the iterate's current
+    # through D is round-off of either sign (1e-10 A beside 545 kA), which used to switch it
+    # between conducting and blocked forever.
+    sol = solve("source S p gnd emf=170kV r=872kOhm\nsupply I gnd p current=545kA\ndiode D x p drop=1.3V r=726kOhm\nresistor R y x r=630kOhm\n")
+    assert sol.voltage("S") == pytest.approx(170e3 - 872e3 * 545e3, rel=1e-12)  # Ohm's law: emf + r i, i = -545 kA
+    assert abs(sol.current("D")) < 1e-9 * 545e3
+    assert sol.voltage("D") <= 1.3 + 1e-9 * 4.75e11
+    assert sol.balance["ok"]
