@@ -353,8 +353,7 @@ def layout(sol) -> Layout:
         (index[a], index[b], 0.62 * sum(_step(net.elements[k].kind) for k in els))
         for a, b, els, inner, off, vertical in placed
         if not vertical and a in level_of and b in level_of
-    ]
-    # a node whose parallel runs spread sideways keeps them all outside a bank's frame
+    ]    # a node whose parallel runs spread sideways keeps them all outside a bank's frame
     reach = np.zeros(n)
     for a, b, els, inner, off, vertical in placed:
         if vertical and off:
@@ -828,6 +827,7 @@ def scene(sol, title: str | None = None) -> Scene:
 
     # nodes
     ground = net.ground
+    names: list = []
     for nd, (x, y) in P.items():
         prims.append(
             Prim(
@@ -846,7 +846,7 @@ def scene(sol, title: str | None = None) -> Scene:
             or nd in (b.get("info", {}).get("pos") for b in lay.banks)
             or nd in (b.get("info", {}).get("neg") for b in lay.banks)
         ):
-            prims.append(Prim("text", [(x - 6, y - 8)], text=nd, size=9.5, anchor="end", fill=_MUTED, cls="nodename"))
+            names.append((nd, (x, y)))
         if nd == ground:
             # the ground mark hangs below the node, or beside it when a wire leaves downwards
             gx = x + 16 if any(line[1][1] < line[0][1] for line in lay.wires.get(nd, ())) else x
@@ -855,7 +855,9 @@ def scene(sol, title: str | None = None) -> Scene:
             )
             prims.append(Prim("text", [(gx + 10, y + 17)], text="0 V", size=9, fill=_MUTED))
 
-    prims += _place_labels(requests, P, prims)
+    crowd = _Crowding(P, prims)
+    prims += _place_names(names, crowd)
+    prims += _place_labels(requests, crowd)
     xs_px = [p[0] for p in P.values()] + [px(q)[0] for q in corners]
     ys_px = [p[1] for p in P.values()] + [px(q)[1] for q in corners]
     width = max(max(xs_px) + _MARGIN + 150, 520.0, 0.62 * 14 * len(head) + 32)  # room for the title
@@ -988,25 +990,61 @@ def _overlap(b1, b2) -> float:
     return dx * dy if dx > 0 and dy > 0 else 0.0
 
 
-def _place_labels(requests, P, prims):
+class _Crowding:
+    """What a label would cover: node dots, badges, arrows and text already placed (as boxes)
+    and wires (as sample points)."""
+
+    def __init__(self, P, prims):
+        self.taken = [(x - 5, y - 5, x + 5, y + 5) for x, y in P.values()]
+        samples = []
+        for p in prims:
+            if p.cls in ("badge", "arrow"):
+                xs = [q[0] for q in p.pts]
+                ys = [q[1] for q in p.pts]
+                self.taken.append((min(xs), min(ys), max(xs), max(ys)))
+            elif p.kind == "text":
+                self.taken.append(_text_box(p.pts[0][0], p.pts[0][1], p.text, p.size, p.anchor))
+            if p.cls in ("wire", "bar", "stub"):
+                if p.kind == "line":
+                    (x1, y1), (x2, y2) = p.pts
+                    samples += [(x1 + (x2 - x1) * t / 12, y1 + (y2 - y1) * t / 12) for t in range(1, 12)]
+                else:
+                    samples += [_point(*p.pts, t / 12)[0] for t in range(1, 12)]
+        self.S = np.array(samples) if samples else np.zeros((0, 2))
+
+    def cost(self, box) -> float:
+        c = sum(_overlap(box, t) for t in self.taken)
+        if len(self.S):
+            S = self.S
+            c += 40.0 * int(((S[:, 0] > box[0]) & (S[:, 0] < box[2]) & (S[:, 1] > box[1]) & (S[:, 1] < box[3])).sum())
+        return c
+
+    def best(self, cands, text, size):
+        """The candidate (x, y, anchor) whose box covers least (earlier ones preferred a little);
+        its box is then taken."""
+        best = None
+        for k, (cx, cy, anchor) in enumerate(cands):
+            box = _text_box(cx, cy, text, size, anchor)
+            cost = self.cost(box) + k * 0.5
+            if best is None or cost < best[0]:
+                best = (cost, cx, cy, anchor, box)
+        _, cx, cy, anchor, box = best
+        self.taken.append(box)
+        return cx, cy, anchor
+
+
+def _place_names(names, crowd):
+    """Node names at the free corner of their dot (upper left preferred)."""
+    out = []
+    for nd, (x, y) in names:
+        cands = [(x - 6, y - 8, "end"), (x + 6, y - 8, "start"), (x - 6, y + 15, "end"), (x + 6, y + 15, "start")]
+        cx, cy, anchor = crowd.best(cands, nd, 9.5)
+        out.append(Prim("text", [(cx, cy)], text=nd, size=9.5, anchor=anchor, fill=_MUTED, cls="nodename"))
+    return out
+
+
+def _place_labels(requests, crowd):
     """Put each element's label beside its badge where it covers the fewest other marks."""
-    taken = [(x - 5, y - 5, x + 5, y + 5) for x, y in P.values()]
-    for p in prims:
-        if p.cls == "badge":
-            xs = [q[0] for q in p.pts]
-            ys = [q[1] for q in p.pts]
-            taken.append((min(xs), min(ys), max(xs), max(ys)))
-        elif p.kind == "text":
-            taken.append(_text_box(p.pts[0][0], p.pts[0][1], p.text, p.size, p.anchor))
-    samples = []
-    for p in prims:
-        if p.cls in ("wire", "bar", "stub"):
-            if p.kind == "line":
-                (x1, y1), (x2, y2) = p.pts
-                samples += [(x1 + (x2 - x1) * t / 12, y1 + (y2 - y1) * t / 12) for t in range(1, 12)]
-            else:
-                samples += [_point(*p.pts, t / 12)[0] for t in range(1, 12)]
-    S = np.array(samples) if samples else np.zeros((0, 2))
     out = []
     size = 10.5
     for mid, (tx, ty), text, lw, name in requests:
@@ -1034,18 +1072,7 @@ def _place_labels(requests, P, prims):
                 (x + 20, y + off + 8, "start"),
                 (x - 20, y + off + 8, "end"),
             ]
-        best = None
-        for k, (cx, cy, anchor) in enumerate(cands):
-            box = _text_box(cx, cy, text, size, anchor)
-            cost = sum(_overlap(box, t) for t in taken) + k * 0.5
-            if len(S):
-                cost += 40.0 * int(
-                    ((S[:, 0] > box[0]) & (S[:, 0] < box[2]) & (S[:, 1] > box[1]) & (S[:, 1] < box[3])).sum()
-                )
-            if best is None or cost < best[0]:
-                best = (cost, cx, cy, anchor, box)
-        _, cx, cy, anchor, box = best
-        taken.append(box)
+        cx, cy, anchor = crowd.best(cands, text, size)
         out.append(Prim("text", [(cx, cy)], text=text, size=size, anchor=anchor, fill=_INK, cls="label", group=name))
     return out
 
