@@ -13,7 +13,8 @@ conductance ramp (a shunt from every node to ground, reduced decade by decade to
 Failure to converge is an error naming the elements that did not settle, with the
 iteration history; constant-power demands beyond what the network can deliver, and ideal
 current sources forcing more current through current-limited sources than their limits
-allow, are reported with their figures instead.
+allow, and nonlinear elements held by ideal sources where their law has no answer, are
+reported with their figures instead.
 """
 
 from __future__ import annotations
@@ -24,6 +25,7 @@ import numpy as np
 
 from ..errors import ConvergenceError, NoOperatingPointError, NumericalError
 from ..kinds import KINDS
+from ..kinds.diode import K_OVER_Q
 from .branches import BranchTable
 from .mna import assemble, solve_system
 
@@ -238,6 +240,7 @@ def newton_solve(bt: BranchTable) -> NewtonResult:
     """
     history: list[dict] = []
     _check_limited_cuts(bt)
+    _check_held_voltages(bt)
     only_power = all(kind == "load" for kind, (pos, _) in bt.groups.items() if bt.nonlinear[pos].any())
     if only_power:  # with no other nonlinear element the Thevenin figures are exact up front
         _check_power_demands(bt)
@@ -522,3 +525,93 @@ def _flow_shortfall(d: dict[int, float], arcs: dict[int, set[int]]) -> set[int] 
     if total - flow <= 1e-9 * total:
         return None
     return {u for u in prev if u not in (SRC, SNK)}
+
+
+def _check_held_voltages(bt: BranchTable) -> None:
+    """Refuse nonlinear elements whose voltage is fixed by a path of ideal linear branches
+    (ideal sources, links, zero-resistance fuses) at a value their law cannot take:
+
+    * an ideal piecewise-linear diode (no ``r``) held above its drop would have to carry an
+      unlimited current: no operating point;
+    * a constant-power load without ``vmin`` held at zero or reverse voltage cannot draw its
+      power: no operating point;
+    * a junction diode held so far forward that ``is * exp(v / (n Vt))`` overflows has no
+      current a float can hold.
+    """
+    lin_v = np.flatnonzero(bt.is_voltage & ~bt.nonlinear & (bt.a != bt.b))
+    if len(lin_v) == 0:
+        return
+    adj: dict[int, list[tuple[int, int, float]]] = {}
+    for k in lin_v:
+        a, b, e = int(bt.a[k]), int(bt.b[k]), float(bt.e[k])
+        adj.setdefault(a, []).append((b, int(k), -e))  # V(b) = V(a) - e
+        adj.setdefault(b, []).append((a, int(k), e))
+    comp = np.full(bt.n_nodes, -1, dtype=np.int64)
+    off = np.zeros(bt.n_nodes)
+    via: dict[int, tuple[int, int]] = {}  # node -> (parent node, branch) in the search tree
+    for start in adj:
+        if comp[start] >= 0:
+            continue
+        comp[start] = start
+        queue = [start]
+        for u in queue:
+            for w, k, de in adj[u]:
+                if comp[w] < 0:
+                    comp[w] = start
+                    off[w] = off[u] + de
+                    via[w] = (u, k)
+                    queue.append(w)
+
+    def path(a: int, b: int) -> list[str]:
+        def up(n):
+            out = []
+            while n in via:
+                n, k = via[n]
+                out.append(k)
+            return out
+
+        pa, pb = up(a), up(b)
+        common = set(pa) & set(pb)
+        return [bt.names[k] for k in pa + pb if k not in common]
+
+    for kind_name, (pos, cols) in bt.groups.items():
+        nl = bt.nonlinear[pos]
+        if not nl.any() or kind_name not in ("diode", "load"):
+            continue
+        for j in np.flatnonzero(nl):
+            p = int(pos[j])
+            a, b = int(bt.a[p]), int(bt.b[p])
+            if a == b or comp[a] < 0 or comp[a] != comp[b]:
+                continue
+            v = float(off[a] - off[b])
+            name = bt.names[p]
+            held = path(a, b)
+            by = f"the ideal branch(es) {', '.join(held)}"
+            if kind_name == "diode" and np.isnan(cols["is"][j]) and not cols["r"][j] > 0:
+                drop = float(cols["drop"][j])
+                if v > drop + 1e-12 * max(abs(v), abs(drop)):
+                    raise NoOperatingPointError(
+                        f"ideal diode {name} (drop {drop:.4g} V, no r) is held at {v:.4g} V by {by}: above its drop it "
+                        "would have to carry an unlimited current, so no operating point exists",
+                        element=name,
+                        culprits=(name, *held),
+                        hint="give the diode its forward resistance (r=), or put a resistance in the loop",
+                    )
+            elif kind_name == "diode" and not np.isnan(cols["is"][j]):
+                vt = float(cols["n"][j]) * K_OVER_Q * (float(cols["temp"][j]) + 273.15)
+                if v / vt > 700.0:
+                    raise NumericalError(
+                        f"junction diode {name} is held at {v:.4g} V by {by}: its current is * exp(v / (n Vt)) "
+                        f"= exp({v / vt:.4g}) times is, beyond any number the solver can hold",
+                        element=name,
+                        culprits=(name, *held),
+                        hint="a junction diode forward-biased by an ideal source needs a series resistance",
+                    )
+            elif kind_name == "load" and not np.isnan(cols["power"][j]) and np.isnan(cols["vmin"][j]) and v <= 0:
+                raise NoOperatingPointError(
+                    f"load {name} ({cols['power'][j]:.4g} W, constant power) is held at {v:.4g} V by {by}: it cannot "
+                    "draw its power at zero or reverse voltage, so no operating point exists",
+                    element=name,
+                    culprits=(name, *held),
+                    hint="check the load's terminals (first node positive), or give it vmin= so it drops out",
+                )

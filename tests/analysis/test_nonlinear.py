@@ -222,3 +222,33 @@ def test_a_diode_on_a_dead_end_settles_in_a_half_teravolt_network():
     assert abs(sol.current("D")) < 1e-9 * 545e3
     assert sol.voltage("D") <= 1.3 + 1e-9 * 4.75e11
     assert sol.balance["ok"]
+
+
+def test_an_ideal_diode_held_above_its_drop_by_an_ideal_source_has_no_operating_point():
+    # from memory: ideal diode model (v = drop while conducting, any current >= 0); the ideal
+    # source S fixes v = 2 V > 0.7 V, which no current satisfies
+    with pytest.raises(E.NoOperatingPointError) as info:
+        solve("source S a gnd emf=2V\ndiode D a gnd drop=0.7V\nload L a gnd r=1Ohm\n")
+    assert "0.7 V" in info.value.message and "2 V" in info.value.message
+    assert info.value.culprits == ("D", "S")
+    # below its drop it blocks, and the circuit solves (Ohm's law: 0.5 V / 1 Ohm)
+    sol = solve("source S a gnd emf=0.5V\ndiode D a gnd drop=0.7V\nload L a gnd r=1Ohm\n")
+    assert sol.current("L") == pytest.approx(0.5, rel=1e-12)
+    assert sol.state("D") == "blocked"
+
+
+def test_a_constant_power_load_shorted_by_a_link_has_no_operating_point():
+    # from memory: constant-power load model i = P / v, which has no value at v = 0 (the link K
+    # holds the load's terminals together)
+    with pytest.raises(E.NoOperatingPointError) as info:
+        solve("source S a gnd emf=12V r=0.1Ohm\nload P a b power=100W\nlink K a b\nload R b gnd r=1Ohm\n")
+    assert "0 V" in info.value.message and info.value.culprits == ("P", "K")
+
+
+def test_a_junction_diode_held_far_forward_by_an_ideal_source_is_refused_with_its_exponent():
+    # Shockley's law i = is (exp(v / (n Vt)) - 1): at 100 V and Vt = 25.7 mV the exponent is
+    # 3892, beyond the largest float (about exp(709))
+    with pytest.raises(E.NumericalError) as info:
+        solve("source S a gnd emf=100V\ndiode D a gnd is=1pA\nload L a gnd r=1Ohm\n")
+    assert not isinstance(info.value, E.ConvergenceError)
+    assert "exp(3892)" in info.value.message  # 100 V / (k T / q) at 25 degC, k and q exact (SI 2019)
