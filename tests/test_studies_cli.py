@@ -161,3 +161,19 @@ def test_python_api_sweep_and_spread():
     assert res.quantities.shape == (3, 1) and list(values["run"]) == [1.0, 2.0, 3.0]
     _, values, res = studies.spread(SHED, 50, seed=4, names=["r_mono"], show=["BAT.s1.fuse.current"])
     assert values["r_mono"].shape == (50,) and res.n == 50
+
+
+def test_spread_and_sweep_with_fault_current(capsys):
+    # --fault adds the fault-current rule for every fuse with an interrupt rating (six in the
+    # demo: four string fuses, the inverter's and the pump's), also in worker processes
+    argv = ["spread", SHED, "--samples", "500", "--fault", "--format", "json"]
+    code, one, _ = run(capsys, *argv, "--jobs", "1")
+    _, pool, _ = run(capsys, *argv, "--jobs", "2")
+    assert one == pool
+    data = json.loads(one)
+    rules = [c for c in data["checks"] if c["rule"] == "fault current"]
+    assert len(rules) == 6 and all(c["pass_share"] == 1.0 for c in rules)
+    code, out, _ = run(capsys, "spread", SHED, "--samples", "300")
+    assert "not per sample: prospective fault current (add --fault)" in out
+    code, out, _ = run(capsys, "sweep", CABIN, "--vary", "run=1m..5m:3", "--show", "A.current", "--fault")
+    assert code in (0, 1) and "fault current through rated fuses" in out

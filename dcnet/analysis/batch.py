@@ -33,11 +33,30 @@ __all__ = ["BatchSolution", "solve_batch", "dense_chunk"]
 class BatchSolution:
     """Potentials, element voltages and currents of many samples (one row per sample)."""
 
-    def __init__(self, potentials: np.ndarray, v: np.ndarray, i: np.ndarray, balance: dict):
+    def __init__(self, potentials: np.ndarray, v: np.ndarray, i: np.ndarray, balance: dict, systems=None):
         self.potentials = potentials
         self.v = v
         self.i = i
         self.balance = balance
+        # (dense stack A or sparse [(A, lu)], the sparse pattern or None, (row, N, vb)): for
+        # further right-hand sides on the same matrices (prospective fault currents)
+        self._systems = systems
+
+    def solve_more(self, B: np.ndarray) -> np.ndarray:
+        """Solve every sample's own matrix for the columns of ``B`` (unknowns x k, the same for
+        every sample); returns (samples, unknowns, k)."""
+        mats, sparse, _layout = self._systems
+        if sparse is None:
+            A = mats
+            if A.shape[1] == 0:
+                return np.zeros((A.shape[0], 0, B.shape[1]))
+            return np.linalg.solve(A, np.broadcast_to(B, (A.shape[0],) + B.shape))
+        return np.stack([sparse.Pc @ lu.solve(B) for _A, lu in mats])
+
+    @property
+    def rows(self):
+        """(row of each node in the system, -1 for ground; number of node rows; voltage branches)."""
+        return self._systems[2]
 
 
 def _rows(bt: BranchTable):
@@ -290,4 +309,4 @@ def solve_batch(bt: BranchTable, g, c, e, *, sparse: SparsePattern | None = None
                 f"power sum {bal['power_sum_W'][k]:.3g} W",
                 hint="element values may span too many decades in this sample; check the range of the study",
             )
-    return BatchSolution(pot, v, i, bal)
+    return BatchSolution(pot, v, i, bal, (A if sparse is None else mats, sparse, layout))

@@ -169,20 +169,23 @@ def _merge(chunks: list[ChunkResult], n: int, nq: int) -> tuple[np.ndarray, list
 
 
 # --------------------------------------------------------------- the study
-def study_from_file(path: str, names: list[str], options=None, *, independent=(), quantities=()) -> Study:
+def study_from_file(path: str, names: list[str], options=None, *, independent=(), quantities=(), fault: bool = False) -> Study:
     """Load a circuit file and set up a study of the named ``let`` values."""
     from ..language import load
 
     net = load(path, options)
-    return Study(net, names, path=str(path), options=options, independent=independent, quantities=quantities)
+    return Study(net, names, path=str(path), options=options, independent=independent, quantities=quantities, fault=fault)
 
 
 class Study:
     """A circuit and the ``let`` values a study varies. Picklable: workers get a copy."""
 
-    def __init__(self, net: Netlist, names: list[str], *, path: str | None = None, options=None, independent=(), quantities=()):
+    def __init__(
+        self, net: Netlist, names: list[str], *, path: str | None = None, options=None, independent=(), quantities=(), fault: bool = False
+    ):
         self.net = net
         self.path = path
+        self.fault = fault  # also the prospective fault current through rated fuses, per sample
         self.options = options
         self.names = list(dict.fromkeys(names))
         self.independent = set(independent)
@@ -429,6 +432,9 @@ class Study:
             sparse = self._sparse
         sol = solve_batch(bt, g, c, e, sparse=sparse)
         samples = Samples(self.net, bt, sol, cols, changed, S)
+        if self.fault:
+            samples.fault, samples.nominal = True, self.nominal_solution
+            samples.g = np.broadcast_to(g, (S, len(bt.g)))
         q = np.column_stack([samples.quantity(spec)[1] for spec in self.quantity_specs]) if self.quantity_specs else np.zeros((S, 0))
         checks = {}
         for cs in sample_checks(self.net, samples):
@@ -494,14 +500,17 @@ class Study:
             label, _, unit = self.nominal_solution.quantity(spec)
             labels.append(label)
             units.append(unit)
-        covered = CHECKS_BATCHED if self.mode == "batch" else "every check of dcnet check (the circuit was solved point by point)"
+        covered = (CHECKS_BATCHED_FAULT if self.fault else CHECKS_BATCHED) if self.mode == "batch" else "every check of dcnet check (the circuit was solved point by point)"
         return StudyResult(n, labels, units, q, nominal, checks, modes, covered)
 
 
 CHECKS_BATCHED = (
     "string imbalance (banks and limit imbalance), cell current and voltage window, cable ampacity, "
     "fuse loading, voltage drop (loads and limit drop), limit current and limit voltage; "
-    "not per sample: prospective fault current and circulating current (see dcnet check on the file)"
+    "not per sample: prospective fault current (add --fault) and circulating current (see dcnet check on the file)"
+)
+CHECKS_BATCHED_FAULT = CHECKS_BATCHED.replace(
+    "; not per sample: prospective fault current (add --fault) and", ", fault current through rated fuses; not per sample:"
 )
 
 
@@ -519,6 +528,10 @@ class Samples:
         self.cols = cols  # kind -> column -> (S, k) for the kinds a study changes
         self.changed = changed  # element -> key -> (S,)
         self.n = S
+        self.solution = sol  # the batch solution (its matrices take further right-hand sides)
+        self.g = None  # (S, elements) branch conductances, when the per-sample fault check needs them
+        self.nominal = None  # the nominal Solution (where fault points are chosen)
+        self.fault = False  # also the prospective fault current through rated fuses
 
     def _pos(self, name: str) -> int:
         return self.netlist.element_position(name)
@@ -701,28 +714,32 @@ def statistics(values: np.ndarray, nominal: float, percentiles=(1, 5, 50, 95, 99
 
 
 # -------------------------------------------------------------- the API
-def sweep(path: str, vary: dict[str, Any], show=(), options=None, runner=None):
+def sweep(path: str, vary: dict[str, Any], show=(), options=None, runner=None, fault: bool = False):
     """Sweep a circuit file: ``vary`` maps let names to their values (SI, one array each; several
-    names make a grid, the first varying slowest). Returns (study, values, StudyResult).
+    names make a grid, the first varying slowest). ``fault``: also check the prospective fault
+    current through fuses with an interrupt rating at every point. Returns (study, values, StudyResult).
 
     >>> study, values, result = sweep("circuits/cabin.dcn", {"run": axis_values(1.0, 10.0, 10, False)}, ["A.current"])  # doctest: +SKIP
     """
     axes = [(name, np.asarray(v, dtype=float)) for name, v in vary.items()]
-    study = study_from_file(path, [n for n, _ in axes], options, quantities=show)
+    study = study_from_file(path, [n for n, _ in axes], options, quantities=show, fault=fault)
     values = sweep_values(study, axes)
     study.prepare({n: float(v[int(np.abs(v - study.nominal[n]).argmax())]) for n, v in axes})
     return study, values, study.run(values, runner)
 
 
-def spread(path: str, samples: int, *, seed: int = 1, dist: str = "normal", names=None, independent=(), show=(), options=None, runner=None):
+def spread(
+    path: str, samples: int, *, seed: int = 1, dist: str = "normal", names=None, independent=(), show=(), options=None, runner=None, fault: bool = False
+):
     """Monte Carlo over the tolerances of a circuit file (every toleranced let, or ``names``).
-    Returns (study, values, StudyResult)."""
+    ``fault``: also check the prospective fault current through fuses with an interrupt rating
+    in every sample (a second factorisation per sample). Returns (study, values, StudyResult)."""
     from ..language import load
 
     net = load(path, options)
     if names is None:
         names = [k[1] for k in net.exprs if k[0] == "let" and "." not in k[1] and net.values[k[1]][2] is not None]
-    study = Study(net, list(names), path=str(path), options=options, independent=independent, quantities=show)
+    study = Study(net, list(names), path=str(path), options=options, independent=independent, quantities=show, fault=fault)
     values = spread_values(study, samples, seed, dist)
     study.prepare({n: float(v.flat[0]) for n, v in values.items()})
     return study, values, study.run(values, runner)

@@ -7,10 +7,14 @@ arrays). Covered: string imbalance (banks and ``limit imbalance``), cell current
 terminal-voltage window, cable ampacity, fuse loading, voltage drop (to every load and
 ``limit drop``), ``limit current`` and ``limit voltage``.
 
-Not covered per sample: the prospective fault current (two extra solves per fuse and
-sample) and the circulating current at rest (a solve of each bank on its own); they are
-figures of the file, given by ``dcnet check``. A test compares every covered rule here with
-its own module on the same circuits.
+The prospective fault current through each fuse with an ``interrupt`` rating, against that
+rating, is covered when the study asks for it (``--fault``): it costs a second factorisation
+of every sample's matrix (one right-hand side per fuse end, all solved together). The fault
+points are chosen as ``dcnet check`` chooses them, on the nominal circuit (each fuse end
+against the source terminal farthest from it in potential); each sample takes the end that
+drives more current through the fuse. Not covered per sample: the circulating current at rest
+(a solve of each bank on its own), a figure of the file given by ``dcnet check``. A test
+compares every covered rule here with its own module on the same circuits.
 """
 
 from __future__ import annotations
@@ -42,6 +46,68 @@ def run(net, s) -> list[dict]:
     out: list[dict] = []
     for rule in (_imbalance, _cells, _cables, _fuses, _drop, _limits):
         out.extend(rule(net, s))
+    if getattr(s, "fault", False):
+        out.extend(_faults(net, s))
+    return out
+
+
+# ---------------------------------------------------------------- fault current
+def _faults(net, s) -> list[dict]:
+    """Each rated fuse's share of a bolted fault (Thevenin per sample, superposition for the
+    fuse's share: the rule of :mod:`dcnet.checks.fault`)."""
+    from ..kinds import KINDS
+    from .fault import _far_pole
+
+    fuses = [el for el in elements_of(net, "fuse") if el.values.get("interrupt") is not None]
+    if not fuses or s.solution is None:
+        return []
+    sources = [k for k, kind in KINDS.items() if kind.is_source]
+    poles = sorted({n for el in elements_of(net, *sources) for n in el.nodes})
+    points = []
+    for el in fuses:
+        for end in el.nodes:
+            pole = _far_pole(s.nominal, end, poles)
+            if pole is not None:
+                points.append((el, end, pole))
+    if not points:
+        return []
+    bt = s.branches
+    idx = net.node_index
+    row, N, vb = s.solution.rows
+    B = np.zeros((N + len(vb), len(points)))
+    for k, (_el, end, pole) in enumerate(points):
+        ra, rb = row[idx[end]], row[idx[pole]]
+        if ra >= 0:
+            B[ra, k] += 1.0
+        if rb >= 0:
+            B[rb, k] -= 1.0
+    W = s.solution.solve_more(B)  # (samples, unknowns, points)
+    S = s.n
+    pw = np.zeros((S, bt.n_nodes, len(points)))
+    mask = row >= 0
+    pw[:, mask, :] = W[:, row[mask], :]
+    g = s.g
+    best: dict[str, np.ndarray] = {}
+    for k, (el, end, pole) in enumerate(points):
+        p = net.element_position(el.name)
+        r_th = pw[:, idx[end], k] - pw[:, idx[pole], k]
+        v_oc = s.potential(end) - s.potential(pole)
+        scale = np.maximum(1.0, np.abs(v_oc))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            i_sc = np.where(r_th > 1e-15 * scale, v_oc / r_th, np.inf)
+        if bt.is_voltage[p]:
+            di = -i_sc * W[:, N + int(np.flatnonzero(vb == p)[0]), k]
+        else:
+            di = -i_sc * g[:, p] * (pw[:, bt.a[p], k] - pw[:, bt.b[p], k])
+        through = np.abs(s.i[:, p] + np.where(np.isfinite(i_sc), di, 0.0))
+        through = np.where(np.isfinite(i_sc), through, np.inf)
+        best[el.name] = through if el.name not in best else np.maximum(best[el.name], through)
+    out = []
+    for el in fuses:
+        if el.name in best:
+            limit = el.values["interrupt"]
+            v = best[el.name]
+            out.append(_series("fault current", el.name, v, limit, "A", v <= limit, f"interrupt rating of {el.name} (as given)"))
     return out
 
 
