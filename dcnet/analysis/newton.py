@@ -240,17 +240,18 @@ def newton_solve(bt: BranchTable) -> NewtonResult:
     """
     history: list[dict] = []
     _check_limited_cuts(bt)
-    _check_held_voltages(bt)
+    # constant-power loads held at no or reverse voltage cannot run: they start dropped out
+    held_off = _check_held_voltages(bt)
     only_power = all(kind == "load" for kind, (pos, _) in bt.groups.items() if bt.nonlinear[pos].any())
     if only_power:  # with no other nonlinear element the Thevenin figures are exact up front
-        _check_power_demands(bt)
+        _check_power_demands(bt, dropped=held_off)
     gscale = float(np.abs(bt.g).max(initial=1.0))
     plans = [
         ("newton", [(1.0, 0.0)]),
         ("source stepping", [(0.1 * k, 0.0) for k in range(1, 11)]),
         ("conductance ramp", [(1.0, gscale * 10.0**-k) for k in range(0, 13)] + [(1.0, 0.0)]),
     ]
-    dropped: set[int] = set()
+    dropped: set[int] = set(held_off)
     while True:
         groups: list[_Group] = []
         state = None
@@ -527,20 +528,23 @@ def _flow_shortfall(d: dict[int, float], arcs: dict[int, set[int]]) -> set[int] 
     return {u for u in prev if u not in (SRC, SNK)}
 
 
-def _check_held_voltages(bt: BranchTable) -> None:
+def _check_held_voltages(bt: BranchTable) -> set[int]:
     """Refuse nonlinear elements whose voltage is fixed by a path of ideal linear branches
     (ideal sources, links, zero-resistance fuses) at a value their law cannot take:
 
     * an ideal piecewise-linear diode (no ``r``) held above its drop would have to carry an
       unlimited current: no operating point;
-    * a constant-power load without ``vmin`` held at zero or reverse voltage cannot draw its
-      power: no operating point;
     * a junction diode held so far forward that ``is * exp(v / (n Vt))`` overflows has no
       current a float can hold.
+
+    Returns the constant-power loads held at zero or reverse voltage: like a load that sees
+    no voltage at the first linearisation, they cannot run and drop out (the iterate's
+    round-off could otherwise show them a few microvolts and run them at an enormous current).
     """
+    held_off: set[int] = set()
     lin_v = np.flatnonzero(bt.is_voltage & ~bt.nonlinear & (bt.a != bt.b))
     if len(lin_v) == 0:
-        return
+        return held_off
     adj: dict[int, list[tuple[int, int, float]]] = {}
     for k in lin_v:
         a, b, e = int(bt.a[k]), int(bt.b[k]), float(bt.e[k])
@@ -607,11 +611,6 @@ def _check_held_voltages(bt: BranchTable) -> None:
                         culprits=(name, *held),
                         hint="a junction diode forward-biased by an ideal source needs a series resistance",
                     )
-            elif kind_name == "load" and not np.isnan(cols["power"][j]) and np.isnan(cols["vmin"][j]) and v <= 0:
-                raise NoOperatingPointError(
-                    f"load {name} ({cols['power'][j]:.4g} W, constant power) is held at {v:.4g} V by {by}: it cannot "
-                    "draw its power at zero or reverse voltage, so no operating point exists",
-                    element=name,
-                    culprits=(name, *held),
-                    hint="check the load's terminals (first node positive), or give it vmin= so it drops out",
-                )
+            elif kind_name == "load" and not np.isnan(cols["power"][j]) and v <= 0:
+                held_off.add(p)
+    return held_off
