@@ -349,34 +349,44 @@ def layout(sol) -> Layout:
     x_fixed = np.array([fixed_x.get(nd, 0.0) for nd in nodes])
     keep_out = [(blk["x0"] - 1.3, blk["x1"] + 1.3) for blk in blocks]
     upright = [(index[a], index[b]) for a, b, els, inner, off, vertical in placed if vertical]
-    spans = [
-        (index[a], index[b], 0.62 * sum(_step(net.elements[k].kind) for k in els))
-        for a, b, els, inner, off, vertical in placed
-        if not vertical and a in level_of and b in level_of
-    ]    # a node whose parallel runs spread sideways keeps them all outside a bank's frame
+    # a node whose parallel runs spread sideways keeps them all outside a bank's frame
     reach = np.zeros(n)
     for a, b, els, inner, off, vertical in placed:
         if vertical and off:
             for nd in (a, b):
                 reach[index[nd]] = max(reach[index[nd]], abs(off))
+    spans = [
+        (
+            index[a],
+            index[b],
+            0.62 * sum(_step(net.elements[k].kind) for k in els),
+        )
+        for a, b, els, inner, off, vertical in placed
+        if not vertical and a in level_of and b in level_of
+    ]
     x, y = _stress(net, index, y, band_lo, band_hi, held, derived, x_fixed, project, keep_out, upright, spans, reach)
     pos = {nd: (float(x[index[nd]]), float(y[index[nd]])) for nd in nodes}
+
+    rails = _upright(placed, pos, bank_nodes)
 
     # element ends: parallel vertical runs meet their end nodes on a bus bar
     ends: dict[str, tuple] = {}
     attach: dict[str, list[float]] = {}
-    for a, b, els, inner, off, vertical in placed:
+    for idx, (a, b, els, inner, off, vertical) in enumerate(placed):
         seq = [a] + inner + [b]
+        xc = rails.get(idx)  # the x of a run stood upright
         for j, k in enumerate(els):
             el = net.elements[k]
             p, q = seq[j], seq[j + 1]
             pp, pq = pos[p], pos[q]
-            if vertical and off and j == 0:
-                pp = (pp[0] + off, pp[1])
-                attach.setdefault(p, []).append(pp[0])
-            if vertical and off and j == len(els) - 1:
-                pq = (pq[0] + off, pq[1])
-                attach.setdefault(q, []).append(pq[0])
+            if vertical and (off or xc is not None) and j == 0:
+                pp = ((pp[0] if xc is None else xc) + off, pp[1])
+                if abs(pp[0] - pos[p][0]) > 1e-9:
+                    attach.setdefault(p, []).append(pp[0])
+            if vertical and (off or xc is not None) and j == len(els) - 1:
+                pq = ((pq[0] if xc is None else xc) + off, pq[1])
+                if abs(pq[0] - pos[q][0]) > 1e-9:
+                    attach.setdefault(q, []).append(pq[0])
             ends[el.name] = (pp, pq) if el.nodes == (p, q) else (pq, pp)
     for el in net.elements:
         if el.name not in ends:
@@ -396,6 +406,70 @@ def layout(sol) -> Layout:
 
 #: layout units: how far outside a bank frame the wires that go round it run
 _ABOVE, _BELOW, _RIGHT, _LEFT, _LANE = 0.85, 0.55, 1.6, 0.95, 0.9
+
+
+def _upright(placed, pos, bank_nodes) -> dict[int, float]:
+    """Stand slanted vertical runs upright where that is safe.
+
+    A run between nodes at different x is drawn straight up at the x of the end with fewer
+    vertical runs, and the other end (a rail, such as a negative bus) reaches it with its bar,
+    unless the run would then pass a node or bar of another node, overlap a run already standing
+    there, or the rail's bar would run into another node's bar on its level. Moves the inner
+    nodes of the runs it stands up; returns run index -> its x (before its parallel offset)."""
+    n_vertical: dict[str, int] = {}
+    for a, b, _els, _inner, _off, vertical in placed:
+        if vertical:
+            n_vertical[a] = n_vertical.get(a, 0) + 1
+            n_vertical[b] = n_vertical.get(b, 0) + 1
+    span = {nd: [x, x] for nd, (x, _y) in pos.items()}  # each node's bar as it grows
+    columns = []  # (x, y low, y high) of the runs drawn upright
+    for a, b, _els, inner, off, vertical in placed:
+        if vertical and off:
+            for nd in (a, b):
+                span[nd][0] = min(span[nd][0], pos[nd][0] + off)
+                span[nd][1] = max(span[nd][1], pos[nd][0] + off)
+        if vertical and abs(pos[a][0] - pos[b][0]) < 1e-6:
+            ys = sorted((pos[a][1], pos[b][1]))
+            columns.append((pos[a][0] + off, ys[0], ys[1]))
+    out: dict[int, float] = {}
+    for _pass in range(3):  # a run stood upright moves its inner nodes out of another's way
+        before = len(out)
+        _upright_pass(placed, pos, bank_nodes, n_vertical, span, columns, out)
+        if len(out) == before:
+            break
+    return out
+
+
+def _upright_pass(placed, pos, bank_nodes, n_vertical, span, columns, out):
+    for idx, (a, b, _els, inner, off, vertical) in enumerate(placed):
+        if idx in out or not vertical or a in bank_nodes or b in bank_nodes or abs(pos[a][0] - pos[b][0]) < 1e-6:
+            continue
+        rail, other = (a, b) if (n_vertical[a], -pos[a][1]) > (n_vertical[b], -pos[b][1]) else (b, a)
+        x = pos[other][0] + off
+        ylo, yhi = sorted((pos[a][1], pos[b][1]))
+        yr = pos[rail][1]
+        safe = True
+        for nd, (nx, ny) in pos.items():
+            if nd in (a, b) or nd in inner:
+                continue
+            if ylo - 1e-6 < ny < yhi + 1e-6 and abs(ny - yr) > 1e-6:  # passes this node or its bar?
+                if span[nd][0] - 0.2 < x < span[nd][1] + 0.2:
+                    safe = False
+                    break
+            if abs(ny - yr) <= 1e-6:  # the rail's bar would reach this node's bar
+                lo, hi = min(span[rail][0], x), max(span[rail][1], x)
+                if lo - 0.2 < span[nd][1] and span[nd][0] < hi + 0.2:
+                    safe = False
+                    break
+        if safe and any(abs(cx - x) < 0.3 and cl < yhi and ylo < ch for cx, cl, ch in columns):
+            safe = False
+        if not safe:
+            continue
+        for nd in inner:
+            pos[nd] = (x, pos[nd][1])
+        span[rail][0], span[rail][1] = min(span[rail][0], x), max(span[rail][1], x)
+        columns.append((x, ylo, yhi))
+        out[idx] = x - off
 
 
 def _round_banks(net, placed, blocks, pos, ends, bank_nodes, bank_elements):
@@ -858,9 +932,21 @@ def scene(sol, title: str | None = None) -> Scene:
     crowd = _Crowding(P, prims)
     prims += _place_names(names, crowd)
     prims += _place_labels(requests, crowd)
-    xs_px = [p[0] for p in P.values()] + [px(q)[0] for q in corners]
+    # a label placed left of the leftmost element must not leave the picture: shift it all right
+    boxes = [_text_box(p.pts[0][0], p.pts[0][1], p.text, p.size, p.anchor) for p in prims if p.kind == "text"]
+    left = min([b[0] for b in boxes] + [q[0] for p in prims for q in p.pts], default=0.0)
+    if left < 8.0:
+        shift = 8.0 - left
+        for p in prims:
+            p.pts = [(q[0] + shift, q[1]) for q in p.pts]
+        P = {nd: (x + shift, y) for nd, (x, y) in P.items()}
+        boxes = [(b[0] + shift, b[1], b[2] + shift, b[3]) for b in boxes]
+    else:
+        shift = 0.0
+    xs_px = [p[0] for p in P.values()] + [px(q)[0] + shift for q in corners]
     ys_px = [p[1] for p in P.values()] + [px(q)[1] for q in corners]
-    width = max(max(xs_px) + _MARGIN + 150, 520.0, 0.62 * 14 * len(head) + 32)  # room for the title
+    right = max([b[2] for b in boxes], default=0.0) + 16.0
+    width = max(max(xs_px) + _MARGIN + 150, right, 520.0, 0.62 * 14 * len(head) + 32)  # room for labels and title
     height = max(ys_px) + _MARGIN
     legend, lh = _legend(width, height, imax, list(legend_kinds), {c for c, _ in status.values()})
     prims += legend
