@@ -88,8 +88,14 @@ def _model(bt: BranchTable, groups: list[_Group], v: np.ndarray, i: np.ndarray, 
         lin = ~bt.nonlinear
         c[lin] *= scale
         e[lin] *= scale
-    # the round-off of the iterate's currents, which no current switching rule should act on
-    itol = ITOL * float(np.abs(i[np.isfinite(i)]).max(initial=0.0))
+    # the round-off of currents, which no current switching rule should act on: relative to
+    # the scale the linear elements set (their source currents, and conductance times EMF),
+    # not to the iterate's own currents, which a junction far from its answer can blow up
+    lin = ~bt.nonlinear & ~bt.is_voltage
+    itol = ITOL * max(
+        float(np.abs(bt.c[lin]).max(initial=0.0)),
+        float(np.abs(bt.g[lin]).max(initial=0.0)) * max(bt.max_emf, float(np.abs(v).max(initial=0.0))),
+    )
     for grp in groups:
         cols = grp.cols
         if scale != 1.0:

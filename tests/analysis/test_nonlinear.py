@@ -262,3 +262,24 @@ def test_a_junction_diode_held_far_forward_by_an_ideal_source_is_refused_with_it
         solve("source S a gnd emf=100V\ndiode D a gnd is=1pA\nload L a gnd r=1Ohm\n")
     assert not isinstance(info.value, E.ConvergenceError)
     assert "exp(3892)" in info.value.message  # 100 V / (k T / q) at 25 degC, k and q exact (SI 2019)
+
+
+def test_the_round_off_allowance_of_diode_switching_ignores_a_blown_up_iterate():
+    # Shockley's law: the junction E3 carries what the supply E1 (59,556 A) and the fuse E5
+    # (563 kV / 261.7 kOhm = 2.15 A) need, at v = n Vt ln(i / is) = 0.408 V, and the ideal
+    # diode E2, reverse-biased by E4's 563 kV, blocks. An allowance scaled on an iterate whose
+    # junction current had blown up (exp(700) A) kept E2 conducting (a fuzz input).
+    text = (
+        "load E0 n3 n0 r=936359.5880778554Ohm\nsupply E1 n2 n3 current=59556.14752661452A\n"
+        "diode E2 n2 n3 drop=0.501819521050603V\ndiode E3 n0 n3 is=7.359246229986894e-07A n=0.6324648293547998\n"
+        "source E4 n0 n2 emf=563155.4825370222V\nfuse E5 n3 n2 rating=398211.09881526465A r=261698.12522464248Ohm\nground n2\n"
+    )
+    sol = dcnet.parse(text).solve(checks=False)
+    vt = 0.6324648293547998 * 1.380649e-23 / 1.602176634e-19 * 298.15
+    i3 = sol.current("E3")
+    assert sol.voltage("E3") == pytest.approx(vt * math.log(i3 / 7.359246229986894e-07 + 1), rel=1e-9)
+    # Kirchhoff's current law at n3 (E2's blocked leak is 0.6 uA); it holds to 3e-7 only: the
+    # self-check judges residuals against conductance times potential, which the junction's
+    # companion conductance (3.7 MS) at 563 kV makes very large
+    assert i3 == pytest.approx(59556.14752661452 + sol.current("E5") - sol.current("E0") - sol.current("E2"), rel=1e-6)
+    assert sol.state("E2") == "blocked"
