@@ -104,6 +104,11 @@ def _step(kind: str) -> float:
     return _STEP.get(kind, 1.0)
 
 
+def _room(el) -> float:
+    """Room an element needs along a level: its step, or its label ("NAME  12.3 A") above it."""
+    return max(0.62 * _step(el.kind), 0.6 * 10.5 * (len(el.name) + 9) / _SX)
+
+
 @dataclass
 class Layout:
     """Node positions (layout units, y up), where each element's line starts and ends, bus bars
@@ -359,12 +364,23 @@ def layout(sol) -> Layout:
         (
             index[a],
             index[b],
-            0.62 * sum(_step(net.elements[k].kind) for k in els),
+            sum(_room(net.elements[k]) for k in els) + reach[index[a]] + reach[index[b]],
         )
         for a, b, els, inner, off, vertical in placed
         if not vertical and a in level_of and b in level_of
     ]
-    x, y = _stress(net, index, y, band_lo, band_hi, held, derived, x_fixed, project, keep_out, upright, spans, reach)
+    # nodes on one level whose bars spread sideways keep their bars apart
+    by_level: dict[int, list[int]] = {}
+    for nd, lv in level_of.items():
+        by_level.setdefault(lv, []).append(index[nd])
+    apart = [
+        (i, j, reach[i] + reach[j] + 0.6)
+        for ids in by_level.values()
+        for u, i in enumerate(ids)
+        for j in ids[u + 1 :]
+        if reach[i] + reach[j] > 0
+    ]
+    x, y = _stress(net, index, y, band_lo, band_hi, held, derived, x_fixed, project, keep_out, upright, spans + apart, reach)
     pos = {nd: (float(x[index[nd]]), float(y[index[nd]])) for nd in nodes}
 
     rails = _upright(placed, pos, bank_nodes)
@@ -395,6 +411,27 @@ def layout(sol) -> Layout:
     for nd, xs in attach.items():
         xs = xs + [pos[nd][0]]
         bars[nd] = (min(xs), max(xs), pos[nd][1])
+    # a run along a level between nodes with bars starts and ends at the bars' facing ends, so
+    # it never lies along a bar (where the branches hanging from that bar would seem to join it)
+    for a, b, els, inner, off, vertical in placed:
+        if vertical or (a not in bars and b not in bars) or abs(pos[a][1] - pos[b][1]) > 1e-6:
+            continue
+        if a in bank_nodes or b in bank_nodes:
+            continue
+        y0 = pos[a][1]
+        sa, sb = (1.0, -1.0) if pos[a][0] <= pos[b][0] else (-1.0, 1.0)  # which end of each bar faces
+        xa = (bars[a][1] if sa > 0 else bars[a][0]) if a in bars else pos[a][0]
+        xb = (bars[b][0] if sb < 0 else bars[b][1]) if b in bars else pos[b][0]
+        if (xb - xa) * sa < 0.3:
+            continue  # no room between the bars: left as drawn
+        steps = np.cumsum([_step(net.elements[k].kind) for k in els])
+        pts = [(xa, y0)] + [(xa + (xb - xa) * t, y0) for t in steps[:-1] / steps[-1]] + [(xb, y0)]
+        for nd, q in zip(inner, pts[1:-1]):
+            pos[nd] = (float(q[0]), y0)
+        seq = [a] + inner + [b]
+        for j, k in enumerate(els):
+            el = net.elements[k]
+            ends[el.name] = (pts[j], pts[j + 1]) if el.nodes == (seq[j], seq[j + 1]) else (pts[j + 1], pts[j])
     for blk in blocks:
         seqs = bank_chains[blk["name"]]
         blk["y0"] = min(pos[q[0]][1] for q in seqs)
@@ -467,6 +504,7 @@ def _upright_pass(placed, pos, bank_nodes, n_vertical, span, columns, out):
             continue
         for nd in inner:
             pos[nd] = (x, pos[nd][1])
+            span[nd] = [x, x]
         span[rail][0], span[rail][1] = min(span[rail][0], x), max(span[rail][1], x)
         columns.append((x, ylo, yhi))
         out[idx] = x - off

@@ -219,3 +219,25 @@ def test_nothing_outside_a_bank_is_drawn_across_it(path):
     for nd, lines in lay.wires.items():  # every wire starts at its node
         for line in lines:
             assert line[0] == pytest.approx(lay.pos[nd])
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=[p.stem for p in DEMOS])
+def test_no_element_runs_along_another_nodes_bar(path):
+    # An element drawn along a bus bar it does not belong to (a fuse between two buses on one
+    # level, drawn over both bars) makes the branches hanging from that bar seem to join it.
+    sol = dcnet.load(path).solve()
+    lay = picture.layout(sol)
+    for el in sol.netlist.elements:
+        (xa, ya), (xb, yb) = lay.ends[el.name]
+        if abs(ya - yb) > 1e-6:
+            continue  # only runs along a level can lie on a bar
+        lo, hi = sorted((xa, xb))
+        for nd, (x0, x1, y) in lay.bars.items():
+            if abs(y - ya) > 1e-6:
+                continue
+            overlap = min(hi, x1) - max(lo, x0)
+            if nd in el.nodes:
+                # its own bar: it may touch the bar's end, not run along it
+                assert overlap <= 0.05, f"{el.name} runs along the bar of {nd}"
+            else:
+                assert overlap <= 0.05, f"{el.name} runs along the bar of {nd}, which it does not join"
