@@ -150,7 +150,8 @@ class Solution:
 
         ``ELEMENT.current``, ``ELEMENT.voltage``, ``ELEMENT.power``,
         ``NODE.potential``, ``NODE`` (its potential), ``NODE,NODE`` (their
-        difference), or ``ELEMENT.<extra>`` such as ``P1.drop_pct``.
+        difference), ``ELEMENT.<extra>`` such as ``P1.drop_pct``, or a bank's
+        ``BANK.imbalance_pct`` and ``BANK.circulating_A`` (its strings at rest).
         Returns (label, value, unit).
         """
         spec = spec.strip()
@@ -174,6 +175,12 @@ class Solution:
             raise QuantityError(f"{name} has no result '{attr}'; it has: {', '.join(known)}")
         if spec in self.netlist.node_index:
             return (f"{spec}.potential", self.potential(spec), "V")
+        if name in self.netlist.banks and attr:
+            from ..checks.imbalance import BANK_QUANTITIES, bank_quantity
+
+            if attr not in BANK_QUANTITIES:
+                raise QuantityError(f"bank {name} has no result '{attr}'; it has: {', '.join(BANK_QUANTITIES)}")
+            return (spec, bank_quantity(self.netlist, self, name, attr), BANK_QUANTITIES[attr])
         if spec in self._pos:
             raise QuantityError(f"say which result of {spec}: {spec}.current, {spec}.voltage or {spec}.power")
         raise QuantityError(_unknown("element or node", name if attr else spec, list(self._pos) + list(self.netlist.node_index)))

@@ -432,6 +432,7 @@ class Study:
             sparse = self._sparse
         sol = solve_batch(bt, g, c, e, sparse=sparse)
         samples = Samples(self.net, bt, sol, cols, changed, S)
+        samples.gce = (g, c, e)
         if self.fault:
             samples.fault, samples.nominal = True, self.nominal_solution
             samples.g = np.broadcast_to(g, (S, len(bt.g)))
@@ -532,6 +533,7 @@ class Samples:
         self.g = None  # (S, elements) branch conductances, when the per-sample fault check needs them
         self.nominal = None  # the nominal Solution (where fault points are chosen)
         self.fault = False  # also the prospective fault current through rated fuses
+        self.gce = None  # the samples' (g, c, e) branch arrays (a bank's circulating current)
 
     def _pos(self, name: str) -> int:
         return self.netlist.element_position(name)
@@ -607,7 +609,32 @@ class Samples:
             ex = self.extras(name)
             unit = attr.rsplit("_", 1)[-1] if "_" in attr else ""
             return (spec, ex[attr], {"pct": "%", "ohm": "Ohm"}.get(unit, unit))
+        if spec not in net.node_index and name in net.banks:
+            from ..checks.imbalance import BANK_QUANTITIES
+
+            return (spec, self.bank_quantity(name, attr), BANK_QUANTITIES[attr])
         return (f"{spec}.potential", self.potential(spec), "V")
+
+    def bank_quantity(self, name: str, attr: str) -> np.ndarray:
+        """A bank's ``imbalance_pct`` or ``circulating_A`` per sample (as the Solution's); the
+        circulating current solves the bank alone for every sample together."""
+        from ..checks.samples import _imbalance_values
+
+        bank = self.netlist.banks[name]
+        if attr == "imbalance_pct":
+            return _imbalance_values(np.column_stack([self.current(cells[-1]) for cells in bank["strings"]]))
+        from ..checks.imbalance import at_rest_value, bank_alone
+        from .batch import SparsePattern, solve_batch
+        from .branches import branch_table
+
+        sub = bank_alone(self.netlist, bank)
+        sbt = branch_table(sub)
+        where = [self.netlist.element_position(el.name) for el in sub.elements]
+        g, c, e = (np.broadcast_to(a, (self.n, len(self.branches.g)))[:, where] for a in self.gce)
+        sparse = SparsePattern(sbt, g, c) if sbt.solved_voltage.sum() + sbt.n_nodes - 1 > DENSE_LIMIT else None
+        sol = solve_batch(sbt, g, c, e, sparse=sparse)
+        last = [sub.element_position(cells[-1]) for cells in bank["strings"]]
+        return at_rest_value(np.abs(sol.i[:, last]).max(axis=1), c)
 
 
 # ------------------------------------------------------------- comparison

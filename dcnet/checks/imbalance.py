@@ -19,8 +19,12 @@ def _imbalance(currents: np.ndarray) -> float | None:
     return float(np.abs(currents - mean).max() / abs(mean))
 
 
-def circulating_current(net, bank: dict) -> float:
-    """Largest string current when the bank stands alone with its terminals open (at rest)."""
+#: per-bank result quantities (``BANK.imbalance_pct``, ``BANK.circulating_A``) and their units
+BANK_QUANTITIES = {"imbalance_pct": "%", "circulating_A": "A"}
+
+
+def bank_alone(net, bank: dict):
+    """The bank's own elements as a circuit of their own: terminals open, grounded at NEG."""
     from ..netlist import Netlist
 
     sub = Netlist(title=net.title)
@@ -30,8 +34,33 @@ def circulating_current(net, bank: dict) -> float:
             sub.add(el)
     sub.ground = bank["neg"]
     sub.ground_rule = "ground statement"
-    sol = sub.solve(checks=False)
-    return float(max(abs(sol.current(cells[-1])) for cells in bank["strings"]))
+    return sub
+
+
+def circulating_current(net, bank: dict) -> float:
+    """Largest string current when the bank stands alone with its terminals open (at rest)."""
+    sol = bank_alone(net, bank).solve(checks=False)
+    value = float(max(abs(sol.current(cells[-1])) for cells in bank["strings"]))
+    return at_rest_value(value, sol.branches.c)
+
+
+def at_rest_value(value, c):
+    """The circulating current with round-off shown as zero: below 1e-12 of the largest
+    short-circuit current (E/r) of the bank's cells, equal strings exchange nothing."""
+    scale = np.abs(c).max(axis=-1, initial=0.0)
+    out = np.where(np.abs(value) <= 1e-12 * scale, 0.0, value)
+    return float(out) if out.ndim == 0 else out
+
+
+def bank_quantity(net, sol, name: str, attr: str) -> float:
+    """``imbalance_pct``: the largest deviation of a string current from the strings' mean, in %
+    of the mean (NaN when no net current flows); ``circulating_A``: the largest string current
+    with the bank at rest on its own."""
+    bank = net.banks[name]
+    if attr == "imbalance_pct":
+        value = _imbalance(np.array([sol.current(cells[-1]) for cells in bank["strings"]]))
+        return float("nan") if value is None else value * 100
+    return circulating_current(net, bank)
 
 
 def bank_limits(net) -> dict[str, tuple[float, str]]:

@@ -24,7 +24,8 @@ def add_parser(sub) -> None:
         nargs="+",
         metavar="QUANTITY",
         help="print only these: ELEMENT.current, ELEMENT.voltage, ELEMENT.power, NODE.potential, "
-        "ELEMENT.<extra> (e.g. P1.drop_pct), or NODE,NODE for the voltage between two nodes",
+        "ELEMENT.<extra> (e.g. P1.drop_pct), NODE,NODE for the voltage between two nodes, "
+        "or BANK.imbalance_pct and BANK.circulating_A",
     )
     add_input_options(s)
     from ..parallel import add_options

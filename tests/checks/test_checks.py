@@ -6,6 +6,7 @@ from pathlib import Path
 import pytest
 
 import dcnet
+from dcnet.analysis.solution import QuantityError
 from dcnet.checks.fault import fault_response
 from dcnet.cli import main
 
@@ -129,6 +130,17 @@ def test_imbalance_limit_and_circulating_current():
     (circ,) = verdicts(sol, "circulating current", "bank R")
     # at rest the two 13.2 V strings drive the 13.1 V one: 0.1 V / (6 mOhm + 3 mOhm) = 11.1 A
     assert circ.value == pytest.approx(0.1 / 0.009, rel=1e-9)
+    # the same figures as the bank's result quantities (dcnet solve --show R.imbalance_pct ...)
+    assert sol.quantity("R.imbalance_pct") == ("R.imbalance_pct", pytest.approx(float(expected), rel=1e-9), "%")
+    assert sol.quantity("R.circulating_A")[1:] == (pytest.approx(0.1 / 0.009, rel=1e-9), "A")
+    with pytest.raises(QuantityError, match="imbalance_pct, circulating_A"):
+        sol.quantity("R.sharing")
+
+
+def test_equal_strings_circulate_nothing():
+    # identical strings at rest: no current flows (by symmetry); round-off is shown as zero
+    sol = dcnet.parse("part c cell emf=12.9V r=5.2mOhm\nbank B p n series=4 parallel=4 cell=c strap=0.1mOhm bus=0.2mOhm\nload L p n r=1Ohm\nground n\n").solve()
+    assert sol.quantity("B.circulating_A")[1] == 0.0
 
 
 def test_limit_current_and_voltage_statements():
