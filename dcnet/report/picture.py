@@ -482,32 +482,49 @@ def _upright_pass(placed, pos, bank_nodes, n_vertical, span, columns, out):
         if idx in out or not vertical or a in bank_nodes or b in bank_nodes or abs(pos[a][0] - pos[b][0]) < 1e-6:
             continue
         rail, other = (a, b) if (n_vertical[a], -pos[a][1]) > (n_vertical[b], -pos[b][1]) else (b, a)
-        x = pos[other][0] + off
         ylo, yhi = sorted((pos[a][1], pos[b][1]))
-        yr = pos[rail][1]
-        safe = True
-        for nd, (nx, ny) in pos.items():
-            if nd in (a, b) or nd in inner:
-                continue
-            if ylo - 1e-6 < ny < yhi + 1e-6 and abs(ny - yr) > 1e-6:  # passes this node or its bar?
-                if span[nd][0] - 0.2 < x < span[nd][1] + 0.2:
-                    safe = False
-                    break
-            if abs(ny - yr) <= 1e-6:  # the rail's bar would reach this node's bar
-                lo, hi = min(span[rail][0], x), max(span[rail][1], x)
-                if lo - 0.2 < span[nd][1] and span[nd][0] < hi + 0.2:
-                    safe = False
-                    break
-        if safe and any(abs(cx - x) < 0.3 and cl < yhi and ylo < ch for cx, cl, ch in columns):
-            safe = False
-        if not safe:
+        # straight under the upper end if there is room; else a little beside it, that end's
+        # bar reaching over
+        for shift in (0.0, 0.6, -0.6, 1.2, -1.2):
+            x = pos[other][0] + off + shift
+            grow = [rail] + ([other] if shift else [])
+            if _fits(x, (a, b), grow, inner, pos, span, columns, ylo, yhi):
+                break
+        else:
             continue
         for nd in inner:
             pos[nd] = (x, pos[nd][1])
             span[nd] = [x, x]
-        span[rail][0], span[rail][1] = min(span[rail][0], x), max(span[rail][1], x)
+        for nd in grow:
+            span[nd][0], span[nd][1] = min(span[nd][0], x), max(span[nd][1], x)
         columns.append((x, ylo, yhi))
         out[idx] = x - off
+
+
+def _fits(x, ends, grow, inner, pos, span, columns, ylo, yhi) -> bool:
+    """May a vertical run stand at x from ylo to yhi, the bars of the nodes in ``grow`` reaching
+    it? Not if it passes another node or its bar, overlaps a run already standing there, or a
+    grown bar would reach another node's bar on its level or cross a run passing that level."""
+    levels = {nd: pos[nd][1] for nd in grow}
+    for nd, (_nx, ny) in pos.items():
+        if nd in ends or nd in inner:
+            continue
+        if ylo - 1e-6 < ny < yhi + 1e-6 and all(abs(ny - y) > 1e-6 for y in levels.values()):
+            if span[nd][0] - 0.2 < x < span[nd][1] + 0.2:
+                return False
+        for g, y in levels.items():
+            if abs(ny - y) <= 1e-6:
+                lo, hi = min(span[g][0], x), max(span[g][1], x)
+                if lo - 0.2 < span[nd][1] and span[nd][0] < hi + 0.2:
+                    return False
+    for cx, cl, ch in columns:
+        if abs(cx - x) < 0.3 and cl < yhi and ylo < ch:
+            return False
+        for g, y in levels.items():
+            lo, hi = min(span[g][0], x), max(span[g][1], x)
+            if cl + 1e-6 < y < ch - 1e-6 and lo - 0.05 < cx < hi + 0.05:
+                return False
+    return True
 
 
 def _round_banks(net, placed, blocks, pos, ends, bank_nodes, bank_elements):
