@@ -446,6 +446,9 @@ def test_too_large_a_request_is_refused_up_front():
     assert "terms" in str(info.value) and "keep fewer symbols" in info.value.hint
 
 
+# the timer may ring inside a garbage-collector callback, where the interpreter reports the
+# exception as "ignored" and the budget rings again (see the next test); that report is expected
+@pytest.mark.filterwarnings("ignore::pytest.PytestUnraisableExceptionWarning")
 def test_a_slow_request_is_stopped_by_the_time_budget():
     net = dcnet.parse(_grid(3))
     keep = [el.name + ".r" for el in net.elements if el.kind == "resistor"] + ["B.emf"]
