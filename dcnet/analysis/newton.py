@@ -414,19 +414,13 @@ def _check_limited_cuts(bt: BranchTable) -> None:
     current_only = ~bt.nonlinear & ~bt.is_voltage & (bt.g == 0)  # current sources and open branches
     fixed = current_only & (bt.c != 0)
     free = ~limited & ~current_only
-    parent = list(range(bt.n_nodes))
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
 
-    def root(x: int) -> int:
-        while parent[x] != x:
-            parent[x] = parent[parent[x]]
-            x = parent[x]
-        return x
-
-    for k in np.flatnonzero(free):
-        ra, rb = root(int(bt.a[k])), root(int(bt.b[k]))
-        if ra != rb:
-            parent[ra] = rb
-    top = np.array([root(x) for x in range(bt.n_nodes)], dtype=np.int64)
+    k = np.flatnonzero(free)
+    joined = coo_matrix((np.ones(len(k)), (bt.a[k], bt.b[k])), shape=(bt.n_nodes, bt.n_nodes))
+    _, top = connected_components(joined, directed=False)  # the contracted node of each node
+    top = top.astype(np.int64)
     A, B = top[bt.a], top[bt.b]
     crossing = A != B
     fixed &= crossing
@@ -483,55 +477,30 @@ def _check_limited_cuts(bt: BranchTable) -> None:
 
 def _flow_shortfall(d: dict[int, float], arcs: dict[int, set[int]]) -> set[int] | None:
     """Maximum flow from the nodes with ``d > 0`` to those with ``d < 0`` along uncapacitated
-    arcs (augmenting shortest paths). Returns None when every demand is met, otherwise the
-    nodes reachable from the surplus in the residual graph."""
+    arcs (networkx's minimum cut). Returns None when every demand is met, otherwise the nodes
+    on the source side of a minimum cut (those reachable from the surplus in the residual
+    graph)."""
+    import networkx as nx
+
+    G = nx.DiGraph()
     SRC, SNK = "s", "t"
-    cap: dict = {}
-    adj: dict = {}
-
-    def edge(u, v, c):
-        cap[(u, v)] = cap.get((u, v), 0.0) + c
-        cap.setdefault((v, u), 0.0)
-        adj.setdefault(u, set()).add(v)
-        adj.setdefault(v, set()).add(u)
-
+    G.add_nodes_from((SRC, SNK))
     total = 0.0
     for u, x in d.items():
         if x > 0:
-            edge(SRC, u, x)
+            G.add_edge(SRC, u, capacity=x)
             total += x
         elif x < 0:
-            edge(u, SNK, -x)
-    for u, vs in arcs.items():
-        for v in vs:
-            edge(u, v, float("inf"))
+            G.add_edge(u, SNK, capacity=-x)
     if total <= 0:
         return None
-    tol = 1e-12 * total
-    flow = 0.0
-    while True:
-        prev = {SRC: None}
-        queue = [SRC]
-        for u in queue:
-            for v in adj.get(u, ()):
-                if v not in prev and cap[(u, v)] > tol:
-                    prev[v] = u
-                    queue.append(v)
-        if SNK not in prev:
-            break
-        push, v = float("inf"), SNK
-        while prev[v] is not None:
-            push = min(push, cap[(prev[v], v)])
-            v = prev[v]
-        v = SNK
-        while prev[v] is not None:
-            cap[(prev[v], v)] -= push
-            cap[(v, prev[v])] += push
-            v = prev[v]
-        flow += push
+    for u, vs in arcs.items():
+        for v in vs:
+            G.add_edge(u, v)  # no capacity attribute: unbounded
+    flow, (side, _other) = nx.minimum_cut(G, SRC, SNK)
     if total - flow <= 1e-9 * total:
         return None
-    return {u for u in prev if u not in (SRC, SNK)}
+    return {u for u in side if u != SRC}
 
 
 def _check_held_voltages(bt: BranchTable) -> set[int]:
@@ -551,38 +520,24 @@ def _check_held_voltages(bt: BranchTable) -> set[int]:
     lin_v = np.flatnonzero(bt.is_voltage & ~bt.nonlinear & (bt.a != bt.b))
     if len(lin_v) == 0:
         return held_off
-    adj: dict[int, list[tuple[int, int, float]]] = {}
+    import networkx as nx
+
+    G = nx.Graph()
     for k in lin_v:
-        a, b, e = int(bt.a[k]), int(bt.b[k]), float(bt.e[k])
-        adj.setdefault(a, []).append((b, int(k), -e))  # V(b) = V(a) - e
-        adj.setdefault(b, []).append((a, int(k), e))
+        if not G.has_edge(int(bt.a[k]), int(bt.b[k])):  # parallel ideal branches hold one voltage
+            G.add_edge(int(bt.a[k]), int(bt.b[k]), k=int(k))
     comp = np.full(bt.n_nodes, -1, dtype=np.int64)
-    off = np.zeros(bt.n_nodes)
-    via: dict[int, tuple[int, int]] = {}  # node -> (parent node, branch) in the search tree
-    for start in adj:
-        if comp[start] >= 0:
-            continue
-        comp[start] = start
-        queue = [start]
-        for u in queue:
-            for w, k, de in adj[u]:
-                if comp[w] < 0:
-                    comp[w] = start
-                    off[w] = off[u] + de
-                    via[w] = (u, k)
-                    queue.append(w)
+    off = np.zeros(bt.n_nodes)  # potentials within each group of nodes the ideal branches tie
+    for c, nodes in enumerate(nx.connected_components(G)):
+        root = min(nodes)
+        comp[list(nodes)] = c
+        for u, w in nx.bfs_edges(G, root):
+            k = G[u][w]["k"]
+            off[w] = off[u] - bt.e[k] if int(bt.a[k]) == u else off[u] + bt.e[k]  # v = V(a) - V(b) = e
 
     def path(a: int, b: int) -> list[str]:
-        def up(n):
-            out = []
-            while n in via:
-                n, k = via[n]
-                out.append(k)
-            return out
-
-        pa, pb = up(a), up(b)
-        common = set(pa) & set(pb)
-        return [bt.names[k] for k in pa + pb if k not in common]
+        nodes = nx.shortest_path(G, a, b)
+        return [bt.names[G[x][y]["k"]] for x, y in zip(nodes, nodes[1:])]
 
     for kind_name, (pos, cols) in bt.groups.items():
         nl = bt.nonlinear[pos]
