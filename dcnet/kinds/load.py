@@ -50,7 +50,8 @@ class Load(Kind):
         # never linearise at or below zero volts: a constant-power load has no such operating point
         floor = np.maximum(np.abs(prev), 1e-6) * 0.5
         v0 = np.where(v > floor, v, floor)
-        g = np.where(mode == ON, -P / v0**2, 0.0)
+        with np.errstate(over="ignore"):  # at absurd voltages v0**2 overflows: the load's g is then 0
+            g = np.where(mode == ON, -P / v0**2, 0.0)
         c = np.where(mode == ON, 2 * P / v0, 0.0)
         return admittance(g, c), mode, v0
 
