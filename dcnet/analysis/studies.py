@@ -508,10 +508,10 @@ class Study:
 CHECKS_BATCHED = (
     "string imbalance (banks and limit imbalance), cell current and voltage window, cable ampacity, "
     "fuse loading, voltage drop (loads and limit drop), limit current and limit voltage; "
-    "not per sample: prospective fault current (add --fault) and circulating current (see dcnet check on the file)"
+    "not per sample: prospective fault current (add --fault); a bank's circulating current at rest is a quantity (--show BANK.circulating_A)"
 )
 CHECKS_BATCHED_FAULT = CHECKS_BATCHED.replace(
-    "; not per sample: prospective fault current (add --fault) and", ", fault current through rated fuses; not per sample:"
+    "; not per sample: prospective fault current (add --fault);", ", fault current through rated fuses;"
 )
 
 

@@ -12,9 +12,10 @@ rating, is covered when the study asks for it (``--fault``): it costs a second f
 of every sample's matrix (one right-hand side per fuse end, all solved together). The fault
 points are chosen as ``dcnet check`` chooses them, on the nominal circuit (each fuse end
 against the source terminal farthest from it in potential); each sample takes the end that
-drives more current through the fuse. Not covered per sample: the circulating current at rest
-(a solve of each bank on its own), a figure of the file given by ``dcnet check``. A test
-compares every covered rule here with its own module on the same circuits.
+drives more current through the fuse. The circulating current at rest has no limit (an
+information line in ``dcnet check``); per sample it is the quantity ``BANK.circulating_A``
+(:meth:`dcnet.analysis.studies.Samples.bank_quantity`). A test compares every covered rule
+here with its own module on the same circuits.
 """
 
 from __future__ import annotations
