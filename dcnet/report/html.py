@@ -59,6 +59,9 @@ tr { break-inside: avoid; }
 .swatch { display: inline-block; width: 3mm; height: 3mm; border-radius: 0.6mm; vertical-align: middle; margin-right: 1mm; }
 figure { margin: 2mm 0 4mm; break-inside: avoid; }
 figure svg { display: block; width: 100%; height: auto; max-height: 245mm; border: 1px solid var(--rule); }
+figure.network { overflow-x: auto; }
+table.elements { font-size: 8.5pt; }
+table.elements th, table.elements td { padding: 1mm 1.2mm; }
 figcaption { color: var(--muted); font-size: 9pt; margin-top: 1mm; }
 .caution { border-left: 4px solid var(--fail); background: #fbeff1; padding: 2.5mm 4mm; margin: 5mm 0; break-inside: avoid; }
 .warnings li { margin: 0.5mm 0; }
@@ -69,7 +72,12 @@ figcaption { color: var(--muted); font-size: 9pt; margin-top: 1mm; }
 .note { color: var(--muted); font-size: 9pt; }
 footer { margin-top: 6mm; color: var(--muted); font-size: 8.5pt; border-top: 1px solid var(--rule); padding-top: 2mm; }
 @page { size: A4; margin: 12mm 12mm 14mm; }
+@page wide { size: A4 landscape; margin: 12mm 12mm 14mm; }
 @media print {
+  figure.network { overflow: visible; }
+  figure.network svg { min-width: 0 !important; }
+  .picture.wide { page: wide; }
+  .picture.wide figure svg { max-height: 170mm; }
   html { background: #ffffff; }
   body { padding: 0; max-width: none; font-size: 9.5pt; }
   h2 { break-before: auto; }
@@ -248,17 +256,47 @@ def _summary(sol, file: str | None) -> str:
     return "\n".join(out)
 
 
-def _picture(sol) -> str:
-    from .picture import STATUS, PictureTooLarge, svg
+#: the printable area of an A4 page with this page's margins, in CSS pixels (96 per inch):
+#: upright 186 x 245 mm, on its side 273 x 175 mm
+A4_PORTRAIT_PX = (703.0, 926.0)
+A4_LANDSCAPE_PX = (1032.0, 661.0)
+#: the picture's label size (px) and the smallest it may print at (about 6 pt)
+LABEL_PX, MIN_LABEL_PX = 10.5, 8.0
+
+
+def picture_fit(width: float, height: float) -> tuple[str, float]:
+    """The page a picture of this size prints on, 'portrait' or 'landscape' (a page of its own,
+    on its side, when upright would print its labels smaller than MIN_LABEL_PX and on its
+    side does better), and the size its labels print at (px)."""
+
+    def scale(box):
+        return min(box[0] / width, box[1] / height, 1.0)
+
+    up, side = scale(A4_PORTRAIT_PX), scale(A4_LANDSCAPE_PX)
+    if up * LABEL_PX >= MIN_LABEL_PX or up >= side:
+        return "portrait", up * LABEL_PX
+    return "landscape", side * LABEL_PX
+
+
+def _picture(sol) -> tuple[str, bool]:
+    """The picture's figure, and whether it prints on a page of its own on its side."""
+    from .picture import STATUS, PictureTooLarge, scene, svg_of_scene
 
     try:
-        drawing = svg(sol, title="", standalone=False)
+        sc = scene(sol, title="")
     except PictureTooLarge as exc:
-        return f'<p class="note">No picture: {_e(exc)}. The tables below hold every result.</p>'
+        return f'<p class="note">No picture: {_e(exc)}. The tables below hold every result.</p>', False
+    drawing = svg_of_scene(sc, standalone=False)
+    orientation, _ = picture_fit(sc.width, sc.height)
+    # on a narrow screen the picture keeps its labels legible and scrolls sideways instead
+    least = sc.width * MIN_LABEL_PX / LABEL_PX
+    if least > A4_PORTRAIT_PX[0]:
+        drawing = drawing.replace("<svg ", f'<svg style="min-width:{least:.0f}px" ', 1)
     legend = " ".join(f'<span class="swatch" style="background:{c}"></span>{_e(w)}' for c, w in STATUS.values())
     return (
         f'<figure class="network">{drawing}<figcaption>Higher on the page is higher potential. Arrows show the way each '
-        f"current actually flows; line width grows with the current; colour is the element's worst check: {legend}.</figcaption></figure>"
+        f"current actually flows; line width grows with the current; colour is the element's worst check: {legend}.</figcaption></figure>",
+        orientation == "landscape",
     )
 
 
@@ -426,6 +464,7 @@ def render(
     """
     net = sol.netlist
     title = title or net.title or (file or "dcnet report")
+    figure, wide = _picture(sol)
     if sources is None:
         sources = []
         for f in net.files:
@@ -453,8 +492,8 @@ def render(
         _summary(sol, file),
         f'<div class="caution"><b>Safety.</b> {_e(CAUTION)}</div>',
         "</section>",
-        '<section class="picture"><h2>The network</h2>',
-        _picture(sol),
+        f'<section class="picture{" wide" if wide else ""}"><h2>The network</h2>',
+        figure,
         "</section>",
         '<section class="checks"><h2>Checks</h2>',
         '<p class="note">Worst first. Each limit names its source: a standard (marked secondary where a reproduction was read), a data table, a limit statement in the file, or common practice.</p>',

@@ -75,14 +75,32 @@ def test_console_errors_are_seen(tmp_path):
     assert any("dcnet-probe" in m for m in console_messages(res.stderr)), res.stderr[-2000:]
 
 
+# Added to a copy of the page by the test only (the report itself has no scripts): measures,
+# once laid out at A4 width, whether the page scrolls sideways and how large the picture's
+# labels come out.
+PROBE = """<script>window.addEventListener("load", () => {
+  const d = document.documentElement, svg = document.querySelector("svg.dcnet-picture");
+  const scale = svg ? svg.getBoundingClientRect().width / svg.viewBox.baseVal.width : 1;
+  const p = document.createElement("pre"); p.id = "probe";
+  p.textContent = d.clientWidth + " " + d.scrollWidth + " " + scale; document.body.appendChild(p);
+});</script>"""
+
+
 @pytest.mark.parametrize("path", DEMOS, ids=[p.stem for p in DEMOS])
 def test_demo_report_renders_without_console_errors(tmp_path, path):
     sol = dcnet.load(path).solve()
     page = tmp_path / f"{path.stem}.html"
-    page.write_text(render(sol, file=str(path)), encoding="utf-8")
-    res = browse(tmp_path, page, "--dump-dom")
+    page.write_text(render(sol, file=str(path)).replace("</body>", PROBE + "</body>"), encoding="utf-8")
+    res = browse(tmp_path, page, f"--window-size={A4_WIDTH_PX},1400", "--virtual-time-budget=3000", "--dump-dom")
     assert res.returncode == 0, res.stderr[-2000:]
     assert console_messages(res.stderr) == []
+    # readable at A4 width: the page does not scroll sideways, and the picture's 10.5 px labels
+    # are drawn at 8 px or more (about 6 pt; the picture scrolls inside its frame if need be)
+    m = re.search(r'<pre id="probe">(\d+) (\d+) ([\d.]+)</pre>', res.stdout)
+    assert m, res.stdout[-500:]
+    client, scroll, scale = int(m.group(1)), int(m.group(2)), float(m.group(3))
+    assert scroll <= client, f"the page is {scroll} px wide in a {client} px window"
+    assert 10.5 * scale >= 7.9, f"picture labels drawn at {10.5 * scale:.1f} px"
     census = _Census()
     census.feed(res.stdout)
     # the browser built the picture and the tables
@@ -114,3 +132,20 @@ def test_screenshot_at_a4_width_and_pdf(tmp_path):
     # A4 portrait media box (595 x 842 points)
     box = re.search(rb"/MediaBox\s*\[\s*0\s+0\s+([\d.]+)\s+([\d.]+)", body)
     assert box and abs(float(box.group(1)) - 595.3) < 2 and abs(float(box.group(2)) - 841.9) < 2
+
+
+def test_a_wide_picture_prints_on_a_page_of_its_own_on_its_side(tmp_path):
+    # the cabin rack's eight strings side by side: upright its labels would print at about
+    # 6 px, so the picture takes an A4 page on its side (842 x 595 points) and the rest stays upright
+    sol = dcnet.load(ROOT / "circuits" / "cabin-rack-taps.dcn").solve()
+    page = tmp_path / "rack.html"
+    page.write_text(render(sol), encoding="utf-8")
+    pdf = tmp_path / "rack.pdf"
+    res = browse(tmp_path, page, f"--print-to-pdf={pdf}", "--no-pdf-header-footer")
+    assert res.returncode == 0
+    boxes = [
+        (float(w), float(h)) for w, h in re.findall(rb"/MediaBox\s*\[\s*0\s+0\s+([\d.]+)\s+([\d.]+)", pdf.read_bytes())
+    ]
+    landscape = [b for b in boxes if b[0] > b[1]]
+    assert len(landscape) == 1 and abs(landscape[0][0] - 841.9) < 2 and abs(landscape[0][1] - 595.3) < 2
+    assert len(boxes) - len(landscape) >= 2

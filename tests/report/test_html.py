@@ -172,3 +172,16 @@ def test_report_from_standard_input(capsys, monkeypatch):
     monkeypatch.setattr("sys.stdin", io.StringIO(CABIN.read_text()))
     code, out, _ = run(capsys, "report", "-")
     assert code == 0 and "&lt;stdin&gt;" in out and "Hillside cabin" in out
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=[p.stem for p in DEMOS])
+def test_every_demo_picture_prints_with_legible_labels(path):
+    # on an upright A4 page, or on its side when that prints the labels larger; 8 px at 96 px
+    # per inch is 6 pt, about the smallest print people read without effort (common practice,
+    # no source)
+    from dcnet.report import picture
+    from dcnet.report.html import MIN_LABEL_PX, picture_fit
+
+    sc = picture.scene(dcnet.load(path).solve(), title="")
+    orientation, label = picture_fit(sc.width, sc.height)
+    assert label >= MIN_LABEL_PX, f"{orientation}: labels print at {label:.1f} px"
