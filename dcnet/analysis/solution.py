@@ -183,7 +183,9 @@ class Solution:
             return (spec, bank_quantity(self.netlist, self, name, attr), BANK_QUANTITIES[attr])
         if spec in self._pos:
             raise QuantityError(f"say which result of {spec}: {spec}.current, {spec}.voltage or {spec}.power")
-        raise QuantityError(_unknown("element or node", name if attr else spec, list(self._pos) + list(self.netlist.node_index)))
+        raise QuantityError(
+            _unknown("element or node", name if attr else spec, list(self._pos) + list(self.netlist.node_index) + list(self.netlist.banks))
+        )
 
     # --------------------------------------------------------------- export
     def to_dict(self) -> dict[str, Any]:
