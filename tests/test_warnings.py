@@ -75,3 +75,18 @@ def test_overflowing_solution_is_refused_not_printed():
     text = "diode D n2 n1 is=6e-07A n=1.0\nresistor R n0 n2 r=51674Ohm\nsupply I n1 n0 current=14370A\nsource S n2 n1 emf=30758V\nground n1\n"
     with pytest.raises(E.NumericalError):
         dcnet.parse(text).solve()
+
+
+def test_a_residual_large_beside_the_real_currents_is_not_hidden_by_a_tiny_resistance():
+    # 1,000 V through a 1 micro-ohm conductor into 10 ohm: 100 A flows, while conductance times
+    # potential is 1e9 A. A solve off by 0.5 A at one node (0.5 % of the real current) must not
+    # pass the self-check: the round-off that g·V bounds is a few 1e-16 of it (IEEE 754 double
+    # precision), far below 0.5 A. Kirchhoff's current law is the reference.
+    from dcnet.analysis.solve import WARN_REL, verify
+
+    sol = dcnet.parse("cell B a gnd emf=1000V r=1mOhm\nresistor R a b r=1uOhm\nload L b gnd r=10Ohm\n").solve()
+    bt = sol.branches
+    assert verify(bt, sol.v, sol.i, sol.potentials)["kcl_relative"] <= WARN_REL  # the true solve passes
+    i = sol.i.copy()
+    i[sol.netlist.element_position("L")] += 0.5
+    assert verify(bt, sol.v, i, sol.potentials)["ok"] is False

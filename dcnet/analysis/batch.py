@@ -25,7 +25,7 @@ import numpy as np
 
 from ..errors import NumericalError
 from .branches import BranchTable
-from .solve import REFUSE_REL, WARN_REL
+from .solve import REFUSE_REL, ROUNDOFF_SHARE, WARN_REL
 
 __all__ = ["BatchSolution", "solve_batch", "dense_chunk"]
 
@@ -263,7 +263,9 @@ def verify_batch(bt: BranchTable, pot, v, i, g, c) -> dict:
     adm = ~bt.is_voltage
     g2 = np.broadcast_to(g, (S, len(adm)))[:, adm]
     c2 = np.broadcast_to(c, (S, len(adm)))[:, adm]
-    scale_i = np.maximum.reduce([np.abs(i).max(axis=1, initial=0.0), np.abs(g2).max(axis=1, initial=0.0) * vmax, np.abs(c2).max(axis=1, initial=0.0)])
+    scale_i = np.maximum.reduce(
+        [np.abs(i).max(axis=1, initial=0.0), ROUNDOFF_SHARE * np.abs(g2).max(axis=1, initial=0.0) * vmax, np.abs(c2).max(axis=1, initial=0.0)]
+    )
     p = v * i
     psum = p.sum(axis=1)
     pscale = np.maximum(np.abs(p).sum(axis=1), scale_i * vmax)

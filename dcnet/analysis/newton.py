@@ -28,6 +28,7 @@ from ..kinds import KINDS
 from ..kinds.diode import K_OVER_Q
 from .branches import BranchTable
 from .mna import assemble, solve_system
+from .solve import ROUNDOFF_SHARE
 
 __all__ = ["NewtonResult", "newton_solve", "VTOL", "ITOL", "MAX_ITER"]
 
@@ -179,11 +180,12 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
         pot_new, _, i_model = currents(model, system, x_new, model.g, model.c)
         res_old = _residual(bt, model, v, _exact(bt, model, groups, v, np.where(model.is_voltage, i_model, model.g * v + model.c)))
         alpha = 1.0
-        # the residual's natural size: the largest current, or conductance times potential
-        # (the round-off of a current computed as g * dV), as the self-check judges it
+        # the residual's natural size: the largest current, or a share of conductance times
+        # potential (which bounds the round-off of a current computed as g * dV), as the
+        # self-check judges it
         iscale = max(
             float(np.abs(i_model).max(initial=0.0)),
-            float(np.abs(model.g).max(initial=0.0)) * float(np.abs(pot_new).max(initial=0.0)),
+            ROUNDOFF_SHARE * float(np.abs(model.g).max(initial=0.0)) * float(np.abs(pot_new).max(initial=0.0)),
             1e-12,
         )
         good_enough = ITOL * iscale + 1e-12

@@ -28,6 +28,12 @@ __all__ = ["solve", "currents", "verify", "condition_estimate", "value_span", "W
 WARN_REL = 1e-9
 #: relative residual above which the result is refused
 REFUSE_REL = 1e-6
+#: the share of (largest conductance x largest potential) that counts in the current scale the
+#: residuals are judged against: that product bounds the round-off of a current computed as
+#: g·ΔV, which is a few machine epsilons of it in a sound solve, so a thousandth keeps a margin
+#: of about a million while a tiny resistance at a high voltage can no longer hide a residual
+#: that is large beside the currents that actually flow
+ROUNDOFF_SHARE = 1e-3
 #: worst-case relative error (condition number x machine epsilon) above which a result is
 #: refused, and above which it carries a warning
 COND_REFUSE = 1e-2
@@ -60,7 +66,7 @@ def verify(bt: BranchTable, v: np.ndarray, i: np.ndarray, potentials: np.ndarray
     """Kirchhoff current residual at every node and the power sum (Tellegen).
 
     Residuals are judged relative to the size of the quantities that make them
-    (the largest current, and the largest conductance times the largest
+    (the largest current, and a share of the largest conductance times the largest
     potential, which bounds the round-off in a current computed as g·ΔV), so a
     network whose true currents are all zero is not condemned for round-off.
     """
@@ -71,7 +77,7 @@ def verify(bt: BranchTable, v: np.ndarray, i: np.ndarray, potentials: np.ndarray
     adm = ~bt.is_voltage
     scale_i = max(
         float(np.abs(i).max(initial=0.0)),
-        float(np.abs(bt.g[adm]).max(initial=0.0)) * vmax,
+        ROUNDOFF_SHARE * float(np.abs(bt.g[adm]).max(initial=0.0)) * vmax,
         float(np.abs(bt.c[adm]).max(initial=0.0)),
     )
     p = v * i
