@@ -380,7 +380,15 @@ def layout(sol) -> Layout:
         for j in ids[u + 1 :]
         if reach[i] + reach[j] > 0
     ]
-    x, y = _stress(net, index, y, band_lo, band_hi, held, derived, x_fixed, project, keep_out, upright, spans + apart, reach)
+    frames = [
+        np.array([index[nd] for nd in bank_nodes if nd in fixed_x and blk["x0"] <= fixed_x[nd] <= blk["x1"]])
+        for blk in blocks
+    ]
+    outside = np.array([el.name not in bank_elements for el in net.elements], dtype=bool)
+    x, y = _stress(
+        net, index, y, band_lo, band_hi, held, derived, x_fixed, project, keep_out, upright, spans + apart, reach,
+        frames=(frames, outside),
+    )
     pos = {nd: (float(x[index[nd]]), float(y[index[nd]])) for nd in nodes}
 
     rails = _upright(placed, pos, bank_nodes)
@@ -549,7 +557,7 @@ def _round_banks(net, placed, blocks, pos, ends, bank_nodes, bank_elements):
         (xa, ya), (xb, yb) = seg_a, seg_b
         for t in np.linspace(0.05, 0.95, 19):
             x, y = xa + (xb - xa) * t, ya + (yb - ya) * t
-            if blk["x0"] - 0.3 < x < blk["x1"] + 0.3 and blk["y0"] + 0.15 < y < blk["y1"] - 0.15:
+            if _in_frame(x, y, blk["x0"], blk["x1"], blk["y0"], blk["y1"]):
                 return True
         return False
 
@@ -631,6 +639,7 @@ def _stress(
     upright=(),
     spans=(),
     reach=None,
+    frames=None,
     iterations: int = 240,
 ):
     """Stress majorisation: x free (held nodes stay, derived ones follow their chain), y inside
@@ -707,13 +716,37 @@ def _stress(
             project(x, yy)
         dist = np.sqrt((x[:, None] - x[None, :]) ** 2 + (yy[:, None] - yy[None, :]) ** 2)
         stress = float((w * (dist - d) ** 2).sum())
-        key = (_crossings(x, yy, a, b), stress)
+        key = (_crossings(x, yy, a, b) + 10 * _through_frames(x, yy, a, b, frames), stress)
         if best is None or key < best[0]:
             best = (key, x.copy(), yy.copy())
     _, x, yy = best
     if not held.any():
         x = x - x.min()
     return x, yy
+
+
+def _in_frame(x, y, x0, x1, y0, y1):
+    """Inside a bank's block: between its outer strings and from its bottom row to its top
+    row, both rows included (a line along a row would lie on the bank's bus)."""
+    return (x > x0 - 0.05) & (x < x1 + 0.05) & (y > y0 - 0.1) & (y < y1 + 0.1)
+
+
+def _through_frames(x, y, a, b, frames) -> int:
+    """Elements outside the banks whose straight line passes through a bank's frame."""
+    if not frames or not len(frames[0]):
+        return 0
+    blocks, outside = frames
+    count = 0
+    t = np.linspace(0.05, 0.95, 19)[:, None]
+    for ids in blocks:
+        if not len(ids):
+            continue
+        x0, x1, y0, y1 = x[ids].min(), x[ids].max(), y[ids].min(), y[ids].max()
+        xs = x[a[outside]] + (x[b[outside]] - x[a[outside]]) * t
+        ys = y[a[outside]] + (y[b[outside]] - y[a[outside]]) * t
+        inside = _in_frame(xs, ys, x0, x1, y0, y1)
+        count += int(inside.any(axis=0).sum())
+    return count
 
 
 def _crossings(x, y, a, b) -> int:
