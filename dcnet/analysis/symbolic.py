@@ -132,7 +132,6 @@ class Formula:
         """A fast numeric function (``sympy.lambdify`` to numpy) taking the kept values
         positionally, in the order of :attr:`names`; arrays broadcast."""
         if self._func is None:
-            import sympy
 
             self._func = _numeric_function(self.symbols, self.expr)
         return self._func
@@ -1513,7 +1512,6 @@ class _TreeEvaluator:
 
 
 def _checked(q: _Quantity, expr, fn, fd, coeff, kept) -> Formula:
-    import sympy
 
     syms = [k.symbol for k in kept]
     f = _numeric_function(syms, expr) if syms else None

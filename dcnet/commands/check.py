@@ -5,8 +5,7 @@ from __future__ import annotations
 import json
 import sys
 
-from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options, solve_one, status
-
+from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options
 
 
 def add_parser(sub) -> None:

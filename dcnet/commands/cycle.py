@@ -40,7 +40,6 @@ def _seconds(text: str) -> float:
 def run(args) -> int:
     from ..analysis.cycle import run as run_cycle
     from ..language import load, parse
-    from ..report import text as rt
 
     opts = options(args)
     step = _seconds(args.step)

@@ -9,7 +9,6 @@ from ..errors import DcnetError
 from .common import EXIT_BAD_INPUT, EXIT_OK, add_input_options, options
 
 
-
 def add_parser(sub) -> None:
     lay = sub.add_parser("layouts", help="solve a bank with its main leads tapped at the same end, opposite ends and the centre, side by side")
     lay.add_argument("file", metavar="FILE")

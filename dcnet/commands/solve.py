@@ -9,7 +9,6 @@ from pathlib import Path
 from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options, solve_one, status
 
 
-
 def add_parser(sub) -> None:
     s = sub.add_parser("solve", help="solve circuit files and print potentials, currents and powers")
     s.add_argument("files", nargs="+", metavar="FILE", help="circuit files (.dcn), folders or patterns; - reads standard input")

@@ -28,7 +28,7 @@ import re
 
 import numpy as np
 
-from ..data import awg_name, iec60228_table, iec60228_max_resistance, metals, nec_table8, nec_table8_resistance
+from ..data import awg_name, iec60228_max_resistance, iec60228_table, metals, nec_table8, nec_table8_resistance
 from ..errors import InputError, ValueRangeError
 from ..units import AREA, LENGTH, RESISTANCE_PER_LENGTH, TEMPERATURE
 from .base import Kind, Prop, admittance, check_samples, nonnegative, positive

@@ -29,9 +29,9 @@ from ..errors import (
 from ..kinds import KINDS
 from ..kinds.base import Kind
 from ..netlist import Element, Limit, Netlist
+from ..units import DIMENSIONLESS, Quantity, dim_name, lookup_unit
 from .expressions import ExpressionProblem, evaluate, names_in
 from .parser import KEYWORDS, Prop, Statement, parse_statements, parse_value, suggest
-from ..units import DIMENSIONLESS, Quantity, dim_name, lookup_unit
 
 __all__ = ["Options", "load", "parse", "LIMIT_RULES"]
 

@@ -1,6 +1,5 @@
 """Charge and discharge cycles: closed forms, Peukert's law, the ledger, strings that drift apart."""
 
-import math
 from pathlib import Path
 
 import numpy as np

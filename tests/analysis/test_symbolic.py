@@ -464,7 +464,7 @@ def test_the_budget_rings_again_when_its_first_ring_is_swallowed():
     import time
     from types import SimpleNamespace
 
-    from dcnet.analysis.symbolic import _OutOfTime, _budget
+    from dcnet.analysis.symbolic import _budget, _OutOfTime
 
     engine = SimpleNamespace(kept={}, size=0)
     swallowed = []
