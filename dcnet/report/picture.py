@@ -553,14 +553,6 @@ def _round_banks(net, placed, blocks, pos, ends, bank_nodes, bank_elements):
                 return k
         return None
 
-    def crosses(seg_a, seg_b, blk):
-        (xa, ya), (xb, yb) = seg_a, seg_b
-        for t in np.linspace(0.05, 0.95, 19):
-            x, y = xa + (xb - xa) * t, ya + (yb - ya) * t
-            if _in_frame(x, y, blk["x0"], blk["x1"], blk["y0"], blk["y1"]):
-                return True
-        return False
-
     for a, b, els, inner, _off, _vertical in placed:
         if any(net.elements[k].name in bank_elements for k in els):
             continue
@@ -569,16 +561,16 @@ def _round_banks(net, placed, blocks, pos, ends, bank_nodes, bank_elements):
         if k is None or (ka is not None and kb is not None and ka != kb):
             continue
         blk = blocks[k]
-        if not any(crosses(*ends[net.elements[j].name], blk) for j in els):
+        if not any(_segment_in_frame(*ends[net.elements[j].name], blk) for j in els):
             continue
-
-        def row(nd):  # "top", "bottom" or None (a node inside the block, or outside it)
-            if block_of(nd) != k:
-                return None
+        rows = []  # each end: "top" or "bottom" row of the block, "mid" (inside it), None (outside)
+        for nd in (a, b):
             y = pos[nd][1]
-            return "top" if abs(y - blk["y1"]) < 1e-6 else "bottom" if abs(y - blk["y0"]) < 1e-6 else "mid"
-
-        ra, rb = row(a), row(b)
+            if block_of(nd) != k:
+                rows.append(None)
+            else:
+                rows.append("top" if abs(y - blk["y1"]) < 1e-6 else "bottom" if abs(y - blk["y0"]) < 1e-6 else "mid")
+        ra, rb = rows
         if "mid" in (ra, rb):
             continue  # a lead to a string's middle: left as drawn
         lane_y = {"top": blk["y1"] + _ABOVE, "bottom": blk["y0"] - _BELOW}
@@ -602,16 +594,16 @@ def _round_banks(net, placed, blocks, pos, ends, bank_nodes, bank_elements):
             lanes[(k, side)] = used + 1
             col = blk["x1"] + _RIGHT + used * _LANE if side == "right" else blk["x0"] - _LEFT - used * _LANE
 
-        def port(nd, r):
+        ports = []  # where the chain's elements start and end: the node, or the end of its wire
+        for nd, r in ((a, ra), (b, rb)):
             if r is None:
-                return pos[nd]
+                ports.append(pos[nd])
+                continue
             x, y = pos[nd]
-            ly = lane_y[r]
-            line = [(x, y), (x, ly)] + ([(col, ly)] if col is not None else [])
+            line = [(x, y), (x, lane_y[r])] + ([(col, lane_y[r])] if col is not None else [])
             wires.setdefault(nd, []).append(line)
-            return line[-1]
-
-        pa, pb = port(a, ra), port(b, rb)
+            ports.append(line[-1])
+        pa, pb = ports
         steps = np.cumsum([_step(net.elements[j].kind) for j in els])
         f = steps / steps[-1]
         pts = [pa] + [(pa[0] + (pb[0] - pa[0]) * t, pa[1] + (pb[1] - pa[1]) * t) for t in f[:-1]] + [pb]
@@ -723,6 +715,13 @@ def _stress(
     if not held.any():
         x = x - x.min()
     return x, yy
+
+
+def _segment_in_frame(pa, pb, blk) -> bool:
+    """Does the straight line from pa to pb pass through a bank's block (sampled)?"""
+    t = np.linspace(0.05, 0.95, 19)
+    xs, ys = pa[0] + (pb[0] - pa[0]) * t, pa[1] + (pb[1] - pa[1]) * t
+    return bool(_in_frame(xs, ys, blk["x0"], blk["x1"], blk["y0"], blk["y1"]).any())
 
 
 def _in_frame(x, y, x0, x1, y0, y1):
