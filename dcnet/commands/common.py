@@ -25,6 +25,14 @@ def options(args):
     )
 
 
+def add_fault_option(p: argparse.ArgumentParser) -> None:
+    """``--fault`` of the studies (sweep, spread): the per-sample fault-current check."""
+    p.add_argument(
+        "--fault", action="store_true",
+        help="also check the prospective fault current through each fuse with an interrupt rating, per sample (a second factorisation of each sample: about twice the time)",
+    )
+
+
 def add_input_options(p: argparse.ArgumentParser) -> None:
     from ..language import Options
 

@@ -6,7 +6,7 @@ import json
 import sys
 
 from ..errors import InputError
-from .common import EXIT_CHECK_FAILED, EXIT_OK, Output, add_input_options, options
+from .common import EXIT_CHECK_FAILED, EXIT_OK, Output, add_fault_option, add_input_options, options
 
 
 def add_parser(sub) -> None:
@@ -30,10 +30,7 @@ def add_parser(sub) -> None:
     )
     s.add_argument("--show", nargs="+", metavar="QUANTITY", default=[], help="quantities to describe, as in dcnet solve --show")
     s.add_argument("--percentiles", default="1,5,50,95,99", metavar="P,P,...", help="percentiles to report (default 1,5,50,95,99)")
-    s.add_argument(
-        "--fault", action="store_true",
-        help="also check the prospective fault current through each fuse with an interrupt rating, per sample (a second factorisation of each sample: about twice the time)",
-    )
+    add_fault_option(s)
     s.add_argument("--format", choices=("table", "csv", "json"), default="table", help="output format (default: table)")
     s.add_argument("--plot", metavar="PNG", help="also draw a histogram of each quantity (needs matplotlib)")
     s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input)")

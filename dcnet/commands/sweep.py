@@ -6,7 +6,7 @@ import json
 import re
 
 from ..errors import InputError
-from .common import EXIT_CHECK_FAILED, EXIT_OK, Output, add_input_options, options
+from .common import EXIT_CHECK_FAILED, EXIT_OK, Output, add_fault_option, add_input_options, options
 
 _VARY = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*=(.+)$")
 DEFAULT_COUNT = 11
@@ -25,10 +25,7 @@ def add_parser(sub) -> None:
         ":log spaces them geometrically; both may be given: :7:log). Repeat for a grid",
     )
     s.add_argument("--show", nargs="+", required=True, metavar="QUANTITY", help="as in dcnet solve --show: A1.current, bus+, a+,bus+, P1.drop_pct ...")
-    s.add_argument(
-        "--fault", action="store_true",
-        help="also check the prospective fault current through each fuse with an interrupt rating, per sample (a second factorisation of each sample: about twice the time)",
-    )
+    add_fault_option(s)
     s.add_argument("--format", choices=("table", "csv", "json"), default="table", help="output format (default: table)")
     s.add_argument("--plot", metavar="PNG", help="also draw the quantities against the first varied value (needs matplotlib)")
     s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input)")

@@ -286,12 +286,10 @@ def _picture(sol) -> tuple[str, bool]:
         sc = scene(sol, title="")
     except PictureTooLarge as exc:
         return f'<p class="note">No picture: {_e(exc)}. The tables below hold every result.</p>', False
-    drawing = svg_of_scene(sc, standalone=False)
     orientation, _ = picture_fit(sc.width, sc.height)
     # on a narrow screen the picture keeps its labels legible and scrolls sideways instead
     least = sc.width * MIN_LABEL_PX / LABEL_PX
-    if least > A4_PORTRAIT_PX[0]:
-        drawing = drawing.replace("<svg ", f'<svg style="min-width:{least:.0f}px" ', 1)
+    drawing = svg_of_scene(sc, standalone=False, style=f"min-width:{least:.0f}px" if least > A4_PORTRAIT_PX[0] else "")
     legend = " ".join(f'<span class="swatch" style="background:{c}"></span>{_e(w)}' for c, w in STATUS.values())
     return (
         f'<figure class="network">{drawing}<figcaption>Higher on the page is higher potential. Arrows show the way each '

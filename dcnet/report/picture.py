@@ -1374,9 +1374,13 @@ def svg(sol, title: str | None = None, standalone: bool = True) -> str:
     return svg_of_scene(sc, standalone)
 
 
-def svg_of_scene(sc: Scene, standalone: bool = True) -> str:
+def svg_of_scene(sc: Scene, standalone: bool = True, style: str = "") -> str:
+    """The scene as SVG text; ``style``: an inline CSS style for the ``<svg>`` element."""
     w, h = sc.width, sc.height
     size = f' width="{_num(w)}" height="{_num(h)}"' if standalone else ""
+    if style:
+        size += f' style="{escape(style)}"'
+
     out = []
     if standalone:
         out.append('<?xml version="1.0" encoding="UTF-8"?>')
