@@ -1,21 +1,40 @@
-"""Data tables (conductors, chemistries) as commented text files, each row with its source.
+"""Data tables (conductors, protection, chemistries) as commented text files, each row with its source.
 
 Every reader returns SI values (ohms per metre, amperes, volts; temperatures in degC) together
 with the source string of the row it used, so a result can always say where its number came from.
-The files are read once and cached.
+The files are read once and cached. AWG sizes are counted as in the circuit language: 10 is 10 AWG,
+0 is 1/0, -1 is 2/0, -3 is 4/0.
 
-Files (in this folder):
+Files (in this folder) and their readers:
 
 ``metals.tsv``
-    resistivity and temperature coefficient of copper and aluminium;
+    resistivity and temperature coefficient at 20 degC of copper (IEC 60028) and 61 % IACS
+    aluminium (IEC 60889, IEC 60287-1-1); read by :func:`metals`.
 ``iec60228.tsv``
-    IEC 60228 maximum DC resistance at 20 degC of plain copper, class 2 and class 5;
+    IEC 60228 maximum DC resistance at 20 degC of plain copper, class 2 and class 5, 0.5 mm2 to
+    630 mm2; read by :func:`iec60228_table` and :func:`iec60228_max_resistance`.
 ``nec_ch9_table8.tsv``
-    NEC Chapter 9 Table 8, stranded uncoated copper at 75 degC;
+    NEC Chapter 9 Table 8, stranded uncoated copper at 75 degC, 18 AWG to 4/0; read by
+    :func:`nec_table8` and :func:`nec_table8_resistance`.
 ``ampacity.tsv``
-    copper ampacity, 75 degC and 90 degC columns of NEC Table 310.16;
+    copper ampacity, the 60, 75 and 90 degC columns of NEC Table 310.16 (2020 and later; the same
+    values are Table 310.15(B)(16) in the 2011 to 2017 editions), 14 AWG to 4/0; read by
+    :func:`ampacity_table` and :func:`ampacity`.
+``small_conductors.tsv``
+    NEC 240.4(D): the highest overcurrent-device rating allowed for 18 to 10 AWG copper; read by
+    :func:`small_conductor_table` and :func:`small_conductor_limit`.
+``standard_ratings.tsv``
+    NEC 240.6(A): standard ampere ratings of fuses and inverse-time circuit breakers, 15 A to
+    6000 A; read by :func:`standard_ratings`, :func:`standard_ratings_source` and
+    :func:`next_standard_rating`.
+``practices.tsv``
+    rule sets a circuit can say it is built to (``practice NAME``): voltage-drop limits with
+    their sources (:func:`practice`, :func:`practice_names`);
 ``chemistries.tsv``
-    per-cell voltages (nominal, lowest, highest) and a default discharge rate per chemistry.
+    per cell: nominal, lowest and highest terminal voltage, resting voltage empty and full, and a
+    default discharge rate; read by :func:`chemistry_table` and :func:`chemistry`.
+``ocv.tsv``
+    resting (open-circuit) voltage per cell against state of charge; read by :func:`ocv_curve`.
 """
 
 from __future__ import annotations
@@ -35,8 +54,16 @@ __all__ = [
     "nec_table8_resistance",
     "ampacity_table",
     "ampacity",
+    "small_conductor_table",
+    "small_conductor_limit",
+    "standard_ratings",
+    "standard_ratings_source",
+    "next_standard_rating",
     "chemistry_table",
     "chemistry",
+    "ocv_curve",
+    "practice",
+    "practice_names",
     "awg_name",
 ]
 
@@ -126,15 +153,15 @@ def nec_table8_resistance(awg: int) -> tuple[float, str] | None:
 
 _COPPER = ("copper", "cu")
 _ALUMINIUM = ("aluminium", "aluminum", "al")
-_COLUMNS = (75.0, 90.0)  # insulation ratings (degC) with a column in ampacity.tsv
+_COLUMNS = (60.0, 75.0, 90.0)  # insulation ratings (degC) with a column in ampacity.tsv
 
 
 @lru_cache(maxsize=None)
-def ampacity_table() -> dict[int, tuple[float, float, str]]:
-    """``AWG number -> (amperes at 75 °C insulation, amperes at 90 °C insulation, source)``, copper."""
+def ampacity_table() -> dict[int, tuple[float, float, float, str]]:
+    """``AWG number -> (amperes at 60 °C, at 75 °C, at 90 °C insulation, source)``, copper."""
     table = {}
-    for awg, a75, a90, source in read_table("ampacity.tsv", 4):
-        table[_awg_number(awg)] = (float(a75), float(a90), source)
+    for awg, a60, a75, a90, source in read_table("ampacity.tsv", 5):
+        table[_awg_number(awg)] = (float(a60), float(a75), float(a90), source)
     return table
 
 
@@ -148,9 +175,13 @@ def ampacity(
     - ``awg`` (0 is 1/0, -3 is 4/0) picks its own row; otherwise, and for an AWG size without a
       row, the row of the largest tabulated AWG size whose area does not exceed the conductor's
       (conservative; common practice, no source).
-    - ``insulation_C`` picks the column: 90 °C and above the 90 °C column, 75 °C up to 90 °C the
-      75 °C column (the lower one); below 75 °C there is no column, so no value.
+    - ``insulation_C`` picks the column: the highest of the 60, 75 and 90 °C columns that does not
+      exceed the rating (70 °C -> 60 °C column, 80 °C -> 75 °C, 105 °C -> 90 °C); below 60 °C there
+      is no column, so no value.
     - Copper only: for aluminium there is no reference data, and no value is invented.
+
+    The ampacity is not the largest fuse allowed: NEC 240.4(D) (:func:`small_conductor_limit`)
+    caps it for 18 to 10 AWG.
     """
     if insulation_C is None or not math.isfinite(insulation_C):
         raise ValueRangeError(f"insulation rating {insulation_C!r} is not a finite temperature")
@@ -162,9 +193,9 @@ def ampacity(
     if insulation_C < _COLUMNS[0]:
         return None, (
             f"insulation rated {insulation_C:g} degC is below the lowest column of the ampacity table "
-            "(only the 75 degC and 90 degC columns of NEC Table 310.16 are in the data)"
+            "(the 60, 75 and 90 degC columns of NEC Table 310.16 are in the data), so no value"
         )
-    column = 1 if insulation_C >= _COLUMNS[1] else 0
+    column = max(k for k, rating in enumerate(_COLUMNS) if rating <= insulation_C)
     table = ampacity_table()
     if awg is not None and awg in table:
         row, how = awg, f"{awg_name(awg)} AWG"
@@ -186,14 +217,77 @@ def ampacity(
             f"{given} taken as {awg_name(row)} AWG, the largest tabulated size whose area does not exceed it "
             "(common practice, no source)"
         )
-    a75, a90, source = table[row]
-    amps = (a75, a90)[column]
-    return amps, f"{source}, {_COLUMNS[column]:g} degC column, {how}"
+    *amps_by_column, source = table[row]
+    return amps_by_column[column], f"{source}, {_COLUMNS[column]:g} degC column, {how}"
+
+
+# ------------------------------------------------------------------------ overcurrent protection
+
+_RATING_RTOL = 1e-9  # a current this close below a standard rating counts as that rating
+
+
+@lru_cache(maxsize=None)
+def small_conductor_table() -> dict[int, tuple[float, str]]:
+    """``AWG number -> (highest overcurrent-device rating in amperes, source)``: NEC 240.4(D), copper."""
+    table = {}
+    for awg, amps, source in read_table("small_conductors.tsv", 3):
+        table[_awg_number(awg)] = (float(amps), source)
+    return table
+
+
+def small_conductor_limit(awg: int) -> tuple[float, str] | None:
+    """NEC 240.4(D) limit on the fuse or breaker rating for a copper conductor of size ``awg``.
+
+    Returns ``(amperes, source)``, or ``None`` for a size 240.4(D) does not list (8 AWG and larger,
+    and anything thinner than 18 AWG). ``None`` means "not covered by 240.4(D)", not "no limit":
+    for 8 AWG and larger the ampacity with 240.4(B) governs; thinner than 18 AWG the code gives no
+    general rule here. Copper only (the aluminium items of 240.4(D) are not in the data). The
+    conditions 240.4(D)(1) and (2) attach to 18 and 16 AWG are for the caller (small_conductors.tsv).
+    """
+    return small_conductor_table().get(awg)
+
+
+@lru_cache(maxsize=None)
+def _standard_rating_rows() -> tuple[tuple[float, str], ...]:
+    rows = sorted((float(amps), source) for amps, source in read_table("standard_ratings.tsv", 2))
+    if len({amps for amps, _ in rows}) != len(rows):
+        raise ValueError("standard_ratings.tsv: a rating is listed twice")
+    return tuple(rows)
+
+
+def standard_ratings() -> list[float]:
+    """NEC 240.6(A) standard ampere ratings of fuses and inverse-time breakers, ascending (15 A to 6000 A).
+
+    A new list on each call. The fuse-only ratings of 240.6(A) (1, 3, 6, 10 A) are not included.
+    """
+    return [amps for amps, _ in _standard_rating_rows()]
+
+
+def standard_ratings_source() -> str:
+    """Where the list of :func:`standard_ratings` comes from."""
+    return "; ".join(sorted({source for _, source in _standard_rating_rows()}))
+
+
+def next_standard_rating(amps: float) -> tuple[float, str] | None:
+    """The smallest NEC 240.6(A) standard rating at or above ``amps``, and its source.
+
+    ``None`` above the largest standard rating (6000 A). A current within a relative 1e-9 below a
+    standard rating counts as that rating (so round-off in a computed ampacity cannot move it up a
+    step). Used with NEC 240.4(B): the next higher standard rating may protect a conductor whose
+    ampacity is not a standard rating, up to 800 A; applying that limit and the rule's conditions is
+    the caller's part.
+    """
+    if amps is None or not math.isfinite(amps) or amps < 0:
+        raise ValueRangeError(f"current {amps!r} is not a finite non-negative number of amperes")
+    for rating, source in _standard_rating_rows():
+        if rating >= amps * (1 - _RATING_RTOL):
+            return rating, source
+    return None
 
 
 # ------------------------------------------------------------------------ chemistries
 
-_QUANTITIES = ("nominal_V", "vmin_V", "vmax_V", "max_c_rate")
+_QUANTITIES = ("nominal_V", "vmin_V", "vmax_V", "max_c_rate", "rest_min_V", "rest_max_V")
 
 
 @lru_cache(maxsize=None)
@@ -217,8 +311,11 @@ def chemistry_table() -> dict[str, dict[str, tuple[float | str | None, str]]]:
 def chemistry(name: str) -> dict | None:
     """Per-cell data of a chemistry, or ``None`` for a name the table does not know.
 
-    Keys: ``nominal_V``, ``vmin_V``, ``vmax_V`` (volts per cell), ``max_c_rate`` (per hour) — each
-    ``None`` where the table has no defensible value — and ``sources`` (quantity -> source string).
+    Keys: ``nominal_V``, ``vmin_V``, ``vmax_V`` (terminal-voltage window, volts per cell),
+    ``max_c_rate`` (per hour), ``rest_min_V`` and ``rest_max_V`` (resting voltage of an empty and of
+    a full cell, volts) — each ``None`` where the table has no defensible value — and ``sources``
+    (quantity -> source string). The resting range serves to infer a battery's number of cells in
+    series from its EMF: only when exactly one whole n has n x rest_min_V <= EMF <= n x rest_max_V.
     ``agm`` and ``gel`` use the lead-acid rows (the file says why), and their sources say so.
     """
     table = chemistry_table()
@@ -256,3 +353,28 @@ def ocv_curve(chemistry: str):
         return None
     rows.sort()
     return np.array([r[0] for r in rows]), np.array([r[1] for r in rows]), sorted({r[2] for r in rows})
+
+
+# ----------------------------------------------------------------- practices (rule sets)
+
+_PRACTICE_QUANTITIES = ("drop_critical", "drop_other")
+
+
+@lru_cache(maxsize=None)
+def _practice_table() -> dict[str, dict[str, tuple[float, str]]]:
+    table: dict[str, dict[str, tuple[float, str]]] = {}
+    for name, quantity, value, source in read_table("practices.tsv", 4):
+        if quantity not in _PRACTICE_QUANTITIES:
+            raise ValueError(f"practices.tsv: unknown quantity '{quantity}' for {name}")
+        table.setdefault(name, {})[quantity] = (float(value) / 100.0, source)
+    return table
+
+
+def practice_names() -> list[str]:
+    """The rule sets a circuit may name with a ``practice`` statement."""
+    return list(_practice_table())
+
+
+def practice(name: str) -> dict[str, tuple[float, str]] | None:
+    """``quantity -> (value as a fraction, source)`` of a rule set (practices.tsv), or None."""
+    return _practice_table().get(name)
