@@ -16,7 +16,7 @@ from typing import Any
 
 from .errors import Span
 
-__all__ = ["Element", "Limit", "Netlist"]
+__all__ = ["Element", "Limit", "Netlist", "bank_alone"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -71,6 +71,8 @@ class Netlist:
     #: the charge/discharge schedule written in the file (dcnet.analysis.cycle.Phase records)
     phases: list[Any] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    #: the rule set the circuit is built to (``practice NAME``; None: the general default)
+    practice: str | None = None
     node_index: dict[str, int] = field(default_factory=dict)
     _by_name: dict[str, int] = field(default_factory=dict, repr=False)
     # node indices and kind groups kept as elements are added (read by analysis.branches)
@@ -151,3 +153,15 @@ class Netlist:
         if checks:
             sol.run_checks()
         return sol
+
+
+def bank_alone(net: Netlist, bank: dict) -> Netlist:
+    """A bank's own elements as a circuit of their own: terminals open, grounded at its NEG."""
+    sub = Netlist(title=net.title)
+    prefix = bank["prefix"]
+    for el in net.elements:
+        if el.name.startswith(prefix):
+            sub.add(el)
+    sub.ground = bank["neg"]
+    sub.ground_rule = "ground statement"
+    return sub

@@ -10,7 +10,10 @@ Refused (``TopologyError``):
 * floating islands - nodes with no path to ground through elements that tie
   potentials together (everything but current sources and open switches);
   an island joined to the rest only by current sources is reported as current
-  sources without a return path;
+  sources without a return path. A part that only open switches and loads cross
+  into is not refused: it is switched off on purpose (solved as idle), or the
+  loads crossing into it have no supply (:func:`unsupplied`; they draw nothing
+  and the wiring check fails them);
 * loops made only of ideal sources and links (their currents are undetermined,
   and their EMFs may contradict each other).
 """
@@ -23,7 +26,7 @@ from .analysis.branches import BranchTable
 from .errors import TopologyError
 from .netlist import Netlist
 
-__all__ = ["check", "graph", "islands"]
+__all__ = ["check", "graph", "islands", "unsupplied", "one_edit_apart"]
 
 _MAX_LISTED = 12
 
@@ -128,19 +131,57 @@ def _dangling(bt: BranchTable) -> list[str]:
     return [f"element(s) {_names(bt.names[d] for d in dead)} lead nowhere (a dead end) and carry no current"]
 
 
-def _floating(net: Netlist, bt: BranchTable) -> None:
+def _open_crossing(net: Netlist, bt: BranchTable) -> np.ndarray:
+    """Elements that may cross into a part of the network without tying potentials: open
+    switches (held open on purpose) and loads (which, cut off, simply have no supply)."""
+    ok = np.zeros(bt.n_elements, dtype=bool)
+    for kind_name in ("switch", "load"):
+        if kind_name in bt.groups:
+            ok[bt.groups[kind_name][0]] = True
+    return ok & ~bt.connecting
+
+
+def unsupplied(net: Netlist, bt: BranchTable) -> np.ndarray:
+    """Positions of the loads that cross into a part of the network with no path to ground:
+    a current-drawing (or constant-power) load whose other terminal connects to nothing that
+    could close its circuit. Such a load has no supply: it draws nothing, and the wiring check
+    fails it (dcnet.checks.wiring)."""
+    if "load" not in bt.groups:
+        return np.zeros(0, dtype=np.int64)
     labels = islands(bt)
     gl = labels[bt.ground]
-    bad = labels != gl
-    if not bad.any():
+    pos = bt.groups["load"][0]
+    crossing = (labels[bt.a[pos]] != labels[bt.b[pos]]) & ((labels[bt.a[pos]] != gl) | (labels[bt.b[pos]] != gl))
+    return pos[crossing & ~bt.connecting[pos]]
+
+
+def _floating(net: Netlist, bt: BranchTable) -> None:
+    """Refuse parts with no path to ground, unless only open switches and loads cross into them
+    (a part switched off on purpose, or a load with no supply: solved as idle, see
+    dcnet.analysis.islands and dcnet.checks.wiring)."""
+    labels = islands(bt)
+    gl = labels[bt.ground]
+    bad_all = labels != gl
+    if not bad_all.any():
         return
+    allowed = _open_crossing(net, bt)
+    refused_labels = []
+    for lab in np.unique(labels[bad_all]):
+        inside = labels == lab
+        cross = np.flatnonzero(inside[bt.a] != inside[bt.b])
+        if len(cross) and allowed[cross].all():
+            continue
+        refused_labels.append(lab)
+    if not refused_labels:
+        return
+    bad = np.isin(labels, refused_labels)
     floating_nodes = np.flatnonzero(bad)
     touching = np.flatnonzero(bad[bt.a] | bad[bt.b])
     names = [bt.names[i] for i in touching]
     nodes = [bt.node_names[i] for i in floating_nodes]
     current_only = ~bt.connecting
-    crossing = [bt.names[i] for i in touching if current_only[i] and (bad[bt.a[i]] != bad[bt.b[i]]) and bt.c[i] != 0]
-    n_islands = len(set(labels[floating_nodes].tolist()))
+    crossing = [bt.names[i] for i in touching if current_only[i] and (bad[bt.a[i]] != bad[bt.b[i]]) and bt.c[i] != 0 and not allowed[i]]
+    n_islands = len(refused_labels)
     if crossing:
         raise TopologyError(
             f"current source(s) {_names(crossing)} have no return path: the node(s) {_names(nodes)} "
@@ -151,7 +192,7 @@ def _floating(net: Netlist, bt: BranchTable) -> None:
             hint="add a path for the current (a load or resistor) or use a voltage source",
         )
     what = "a floating part" if n_islands == 1 else f"{n_islands} floating parts"
-    hint = "connect it to the rest of the circuit, or check for a misspelt node name or an open switch"
+    hint = "connect it to the rest of the circuit, or check for a misspelt node name"
     typo = _likely_typo(nodes, [bt.node_names[k] for k in np.flatnonzero(~bad)])
     if typo:
         hint = f"did you mean '{typo[1]}' where you wrote '{typo[0]}'? " + hint
@@ -272,3 +313,42 @@ def graph(net: Netlist):
     for el in net.elements:
         G.add_edge(el.nodes[0], el.nodes[1], key=el.name, name=el.name, kind=el.kind)
     return G
+
+
+def one_edit_apart(a: str, b: str) -> bool:
+    """True when ``b`` is ``a`` with one character inserted, deleted, replaced, or two
+    neighbouring characters swapped (and the two differ)."""
+    if a == b:
+        return False
+    la, lb = len(a), len(b)
+    if abs(la - lb) > 1:
+        return False
+    if la == lb:
+        diff = [k for k in range(la) if a[k] != b[k]]
+        if len(diff) == 1:
+            return True
+        return len(diff) == 2 and diff[1] == diff[0] + 1 and a[diff[0]] == b[diff[1]] and a[diff[1]] == b[diff[0]]
+    short, long_ = (a, b) if la < lb else (b, a)
+    k = 0
+    while k < len(short) and short[k] == long_[k]:
+        k += 1
+    return short[k:] == long_[k + 1 :]
+
+
+def node_uses(net: Netlist) -> np.ndarray:
+    """How many element terminals touch each node (a node used once is a free terminal)."""
+    a, b, _ = net.indices()
+    n = len(net.node_index)
+    return np.bincount(np.asarray(a, dtype=np.int64), minlength=n) + np.bincount(np.asarray(b, dtype=np.int64), minlength=n)
+
+
+def spelling_suggestion(net: Netlist, node: str, uses: np.ndarray | None = None) -> str | None:
+    """For a node used only once: another node name one edit away from it (a likely misspelling)."""
+    uses = node_uses(net) if uses is None else uses
+    idx = net.node_index
+    if node not in idx or uses[idx[node]] != 1:
+        return None
+    near = [other for other, k in idx.items() if other != node and uses[k] > 1 and one_edit_apart(node, other)]
+    if not near:
+        near = [other for other, k in idx.items() if other != node and one_edit_apart(node, other)]
+    return near[0] if near else None

@@ -47,10 +47,16 @@ def test_two_floating_islands():
     assert "2 floating parts" in str(err)
 
 
-def test_open_switch_leaves_a_part_floating():
-    err = _refusal(*BASE, "switch S1 pos mid state=open", "resistor R3 mid far r=1Ohm", "resistor R4 far mid r=2Ohm")
-    assert {"S1", "R3", "R4"} <= set(err.culprits)
-    # the same circuit with the switch closed solves, and the floating part then carries no current
+def test_a_part_switched_off_by_an_open_switch_is_idle_not_refused():
+    # an open switch that cuts off a part on purpose is no mistake: the part is solved as idle
+    # (Kirchhoff's current law: no path, no current), its potential marked as set by leakage only
+    sol = dcnet.parse("\n".join(BASE + ["switch S1 pos mid state=open", "resistor R3 mid far r=1Ohm", "resistor R4 far mid r=2Ohm", "ground gnd"])).solve()
+    assert sol.current("R3") == 0 and sol.current("R4") == 0 and sol.state("R3") == "idle"
+    assert not sol.failed
+    assert any("cut off by" in w and "S1" in w for w in sol.warnings)
+    # the rest is untouched: Ohm's law on the loop B, L
+    assert sol.current("L") == pytest.approx(12 / 2.1, rel=1e-12)
+    # closed, the part carries no current either, and sits at the potential of pos
     sol = dcnet.parse(
         "\n".join(BASE + ["switch S1 pos mid state=closed", "resistor R3 mid far r=1Ohm", "resistor R4 far mid r=2Ohm", "ground gnd"])
     ).solve()
@@ -144,9 +150,13 @@ def test_current_source_feeding_an_island_through_resistors():
     assert err.culprits == ("S",)
 
 
-def test_constant_current_load_with_no_return_path():
-    err = _refusal("cell B pos gnd emf=12V r=0.1Ohm", "load L2 x gnd current=2A")
-    assert err.culprits == ("L2",)
+def test_constant_current_load_with_no_return_path_has_no_supply():
+    # a load whose other node connects to nothing cannot draw its current: no supply, a wiring
+    # FAIL naming it (not a refusal at the load's line)
+    sol = dcnet.parse("cell B pos gnd emf=12V r=0.1Ohm\nload L2 x gnd current=2A\nground gnd").solve()
+    assert sol.unsupplied == ["L2"] and sol.current("L2") == 0
+    (v,) = [v for v in sol.verdicts if v.rule == "wiring"]
+    assert not v.ok and "L2" in v.subject and "no supply" in v.detail and "x" in v.detail
 
 
 # --------------------------------------------------------------------------- error objects and helpers

@@ -44,14 +44,18 @@ class BatchSolution:
 
     def solve_more(self, B: np.ndarray) -> np.ndarray:
         """Solve every sample's own matrix for the columns of ``B`` (unknowns x k, the same for
-        every sample); returns (samples, unknowns, k)."""
+        every sample, or samples x unknowns x k); returns (samples, unknowns, k)."""
         mats, sparse, _layout = self._systems
+        S = mats.shape[0] if sparse is None else len(mats)
+        B = np.asarray(B, dtype=float)
+        if B.ndim == 2:
+            B = np.broadcast_to(B, (S,) + B.shape)
         if sparse is None:
             A = mats
             if A.shape[1] == 0:
-                return np.zeros((A.shape[0], 0, B.shape[1]))
-            return np.linalg.solve(A, np.broadcast_to(B, (A.shape[0],) + B.shape))
-        return np.stack([sparse.Pc @ lu.solve(B) for _A, lu in mats])
+                return np.zeros((A.shape[0], 0, B.shape[2]))
+            return np.linalg.solve(A, B)
+        return np.stack([np.asarray(sparse.Pc @ lu.solve(np.ascontiguousarray(B[k]))).reshape(B[k].shape) for k, (_A, lu) in enumerate(mats)])
 
     @property
     def rows(self):
@@ -311,4 +315,37 @@ def solve_batch(bt: BranchTable, g, c, e, *, sparse: SparsePattern | None = None
                 f"power sum {bal['power_sum_W'][k]:.3g} W",
                 hint="element values may span too many decades in this sample; check the range of the study",
             )
-    return BatchSolution(pot, v, i, bal, (A if sparse is None else mats, sparse, layout))
+    # currents within each sample's round-off are zero, as in a single solve (solve.current_bounds)
+    bounds = bounds_batch(bt, layout, A if sparse is None else mats, sparse, x, z, pot, g, c, bal["kcl_max_residual_A"])
+    i = np.where(np.abs(i) <= bounds, 0.0, i)
+    sol = BatchSolution(pot, v, i, bal, (A if sparse is None else mats, sparse, layout))
+    sol.bounds = bounds
+    return sol
+
+
+def bounds_batch(bt: BranchTable, layout, mats, sparse, x, z, pot, g, c, floor) -> np.ndarray:
+    """The round-off bound of every element current of every sample (solve.current_bounds)."""
+    from .solve import BOUND_EPS
+
+    row, N, vb = layout
+    S = x.shape[0]
+    if x.shape[1] == 0:
+        return np.broadcast_to(np.asarray(floor, dtype=float)[:, None], (S, bt.n_elements)).copy()
+    if sparse is None:
+        y = np.einsum("sij,sj->si", np.abs(mats), np.abs(x)) + np.abs(z)
+        dx = BOUND_EPS * np.abs(np.linalg.solve(mats, y[..., None])[..., 0])
+    else:
+        dx = np.empty_like(x)
+        for k, (A, lu) in enumerate(mats):
+            yk = abs(A) @ np.abs(x[k]) + np.abs(z[k])
+            dx[k] = BOUND_EPS * np.abs(sparse.Pc @ lu.solve(yk))
+    dv = np.zeros((S, bt.n_nodes))
+    mask = row >= 0
+    dv[:, mask] = dx[:, row[mask]]
+    ga = np.abs(np.broadcast_to(g, (S, bt.n_elements)))
+    ca = np.abs(np.broadcast_to(c, (S, bt.n_elements)))
+    pa, pb = np.abs(pot[:, bt.a]), np.abs(pot[:, bt.b])
+    bound = ga * (dv[:, bt.a] + dv[:, bt.b]) + BOUND_EPS * (ga * (pa + pb) + ca)
+    if len(vb):
+        bound[:, vb] = dx[:, N:]
+    return bound + np.asarray(floor, dtype=float)[:, None]

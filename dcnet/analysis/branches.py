@@ -38,6 +38,9 @@ class BranchTable:
     representative: np.ndarray | None = None
     #: branches solved by the Newton solver (their g, c, e here are only starting models)
     nonlinear: np.ndarray | None = None
+    #: leak conductance of branches that the model holds open (blocked diodes without roff):
+    #: not in the matrix, used only to place parts cut off by them (dcnet.analysis.islands)
+    leak: np.ndarray | None = None
 
     @property
     def is_nonlinear(self) -> bool:

@@ -21,7 +21,7 @@ TAPS = ("same", "opposite", "centre")
 
 def compare_taps(path: str, options=None, only: str | None = None) -> list[dict]:
     """For each bank (or only ``only``): string currents, imbalance and bank voltage per tap."""
-    from ..checks.imbalance import _imbalance
+    from ..checks.imbalance import imbalance_values
     from ..language import Options, load, parse
 
     options = options or Options()
@@ -54,7 +54,9 @@ def compare_taps(path: str, options=None, only: str | None = None) -> list[dict]
             net, sol = layouts[tap], solved[tap]
             b = net.banks[name]
             cur = np.array([-sol.current(cells[-1]) for cells in b["strings"]])
-            imb = _imbalance(cur)
+            bound = np.array([sol.current_bounds[net.element_position(cells[-1])] for cells in b["strings"]])
+            imb = float(imbalance_values(cur[None, :], bound[None, :])[0])
+            imb = None if np.isnan(imb) else imb / 100
             rows.append(
                 {
                     "tap": tap,

@@ -31,6 +31,8 @@ class System:
     row_of_node: np.ndarray  # node index -> unknown row, -1 for ground
     vbranch: np.ndarray  # element positions of voltage-form branches, in unknown order
     n_node_rows: int
+    #: parts cut off by open elements, pinned in A and z (dcnet.analysis.islands), or None
+    islands: object = None
 
     @property
     def size(self) -> int:

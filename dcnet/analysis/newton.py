@@ -97,13 +97,16 @@ def _model(bt: BranchTable, groups: list[_Group], v: np.ndarray, i: np.ndarray, 
         float(np.abs(bt.c[lin]).max(initial=0.0)),
         float(np.abs(bt.g[lin]).max(initial=0.0)) * max(bt.max_emf, float(np.abs(v).max(initial=0.0))),
     )
+    leak = np.full(len(g), np.nan)
     for grp in groups:
         cols = grp.cols
         if scale != 1.0:
             cols = _scaled(grp, scale)
         br, grp.mode, grp.prev = grp.kind.companion(cols, v[grp.pos], i[grp.pos], grp.mode, grp.prev, itol=itol)
         is_v[grp.pos], g[grp.pos], c[grp.pos], e[grp.pos] = br.is_voltage, br.g, br.c, br.e
-    return dataclasses.replace(bt, is_voltage=is_v, g=g, c=c, e=e)
+        if br.leak is not None:
+            leak[grp.pos] = br.leak
+    return dataclasses.replace(bt, is_voltage=is_v, g=g, c=c, e=e, leak=leak)
 
 
 def _scaled(grp: _Group, s: float) -> dict[str, np.ndarray]:
@@ -162,7 +165,7 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
         modes_before = [grp.mode.copy() for grp in groups]
         model = _model(bt, groups, v, i, scale)
         changed = int(sum(int((m0 != grp.mode).sum()) for m0, grp in zip(modes_before, groups)))
-        system = _assemble(model, shunt)
+        system = _assemble(model, shunt, pot)
         x_new, factor = _try_solve(system)
         stiff = model.is_voltage & bt.nonlinear
         if not np.all(np.isfinite(x_new)) and stiff.any():
@@ -171,7 +174,7 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
             # biased): take this one step with them as stiff conductances instead, which shows
             # which of them must switch back, and never count the step as settled.
             model = _stiffened(model, stiff, STIFF * max(float(np.abs(bt.g).max(initial=0.0)), 1e-300))
-            system = _assemble(model, shunt)
+            system = _assemble(model, shunt, pot)
             x_new, factor = _try_solve(system)
             changed += int(stiff.sum())
         if not np.all(np.isfinite(x_new)):
@@ -224,8 +227,10 @@ def _stiffened(model: BranchTable, mask: np.ndarray, g_stiff: float) -> BranchTa
     return dataclasses.replace(model, is_voltage=is_v, g=g, c=c)
 
 
-def _assemble(model: BranchTable, shunt: float):
-    system = assemble(model)
+def _assemble(model: BranchTable, shunt: float, pot_guess=None):
+    from .islands import pinned_system
+
+    system = pinned_system(model, pot_guess)
     if shunt:
         N = system.n_node_rows
         if system.dense:

@@ -43,7 +43,14 @@ class Solution:
         #: the assembled system and its factorisation (reused by fault-current checks and equivalents)
         self.system = None
         self.factor = None
+        #: the round-off bound of every element current (amperes); currents within it are zero
+        self.current_bounds = np.zeros(len(i))
+        #: parts cut off by open elements (dcnet.analysis.islands.Islands), or None
+        self.islands = None
+        #: loads that cross into a part with no path to ground: no supply, they draw nothing
+        self.unsupplied: list[str] = []
         self._extras: dict[str, dict[str, np.ndarray]] | None = None
+        self._sections = None
         self._states: np.ndarray | None = None
 
     @property
@@ -102,17 +109,48 @@ class Solution:
 
     @property
     def ctx(self) -> dict:
-        return {"max_emf": self.branches.max_emf, "system_voltage": self.system_voltage}
+        return {"max_emf": self.branches.max_emf, "system_voltage": self.system_voltage, "section_voltage": self.section_voltages()}
+
+    @property
+    def sections(self):
+        """Which sources feed each load, along which conductors (dcnet.analysis.sections)."""
+        if self._sections is None:
+            from .sections import sections
+
+            bt = self.branches
+            conducting = np.zeros(bt.n_elements, dtype=bool)
+            if "diode" in bt.groups:
+                pos = bt.groups["diode"][0]
+                conducting[pos] = [self.state(bt.names[p]) == "conducting" for p in pos]
+            self._sections = sections(self.netlist, bt, conducting_diodes=conducting)
+        return self._sections
+
+    def section_voltages(self) -> np.ndarray:
+        """Per element: the section voltage of its first node's conductor group (NaN where none)."""
+        sec = self.sections
+        nodes = self.branches.a
+        out = np.full(len(nodes), np.nan)
+        for lab in np.unique(sec.labels[nodes]):
+            where = sec.labels[nodes] == lab
+            out[where] = sec.group_voltage(self.potentials, int(nodes[where][0]))[0]
+        return out
+
+    def _compute_states(self) -> None:
+        states = np.empty(len(self.i), dtype=object)
+        for kind_name, (pos, cols) in self.branches.groups.items():
+            states[pos] = KINDS[kind_name].state(cols, self.v[pos], self.i[pos])
+        self._states = states
 
     def _compute(self) -> None:
         extras: dict[str, dict[str, np.ndarray]] = {}
-        states = np.empty(len(self.i), dtype=object)
+        if self._states is None:
+            self._compute_states()  # sections need the diodes' states
+        ctx = self.ctx
         for kind_name, (pos, cols) in self.branches.groups.items():
             kind = KINDS[kind_name]
             v, i = self.v[pos], self.i[pos]
-            extras[kind_name] = kind.extras(cols, v, i, self.ctx)
-            states[pos] = kind.state(cols, v, i)
-        self._extras, self._states = extras, states
+            extras[kind_name] = kind.extras(cols, v, i, dict(ctx, section_voltage=ctx["section_voltage"][pos]))
+        self._extras = extras
 
     def extras(self, name: str) -> dict[str, float]:
         """Kind-specific results of one element (a cell's ``loss_W``, a cable's ``drop_pct``...)."""
@@ -127,7 +165,7 @@ class Solution:
     def state(self, name: str) -> str:
         """A plain word for what the element does: charging, discharging, delivering, absorbing..."""
         if self._states is None:
-            self._compute()
+            self._compute_states()
         return str(self._states[self._element_pos(name)])
 
     def element_result(self, name: str) -> dict[str, Any]:
@@ -177,10 +215,11 @@ class Solution:
             return (f"{spec}.potential", self.potential(spec), "V")
         if name in self.netlist.banks and attr:
             from ..checks.imbalance import BANK_QUANTITIES, bank_quantity
+            from ..checks.view import OneSample
 
             if attr not in BANK_QUANTITIES:
                 raise QuantityError(f"bank {name} has no result '{attr}'; it has: {', '.join(BANK_QUANTITIES)}")
-            return (spec, bank_quantity(self.netlist, self, name, attr), BANK_QUANTITIES[attr])
+            return (spec, float(bank_quantity(self.netlist, OneSample(self), name, attr)[0]), BANK_QUANTITIES[attr])
         if spec in self._pos:
             raise QuantityError(f"say which result of {spec}: {spec}.current, {spec}.voltage or {spec}.power")
         raise QuantityError(

@@ -19,10 +19,10 @@ import numpy as np
 from ..errors import NumericalError, TopologyError
 from ..netlist import Netlist
 from .branches import BranchTable, branch_table
-from .mna import System, assemble, solve_system
+from .mna import System, solve_system
 from .solution import Solution
 
-__all__ = ["solve", "currents", "verify", "condition_estimate", "value_span", "WARN_REL", "REFUSE_REL"]
+__all__ = ["solve", "currents", "verify", "current_bounds", "condition_estimate", "value_span", "WARN_REL", "REFUSE_REL"]
 
 #: relative residual above which a warning is attached to the result
 WARN_REL = 1e-9
@@ -51,6 +51,13 @@ def currents(bt: BranchTable, system: System, x: np.ndarray, g=None, c=None):
     i = g * v + c
     if len(system.vbranch):
         i[system.vbranch] = x[system.n_node_rows :]
+    if system.islands:
+        # parts cut off by open elements: where their leaks hold them (analysis/islands.py)
+        pot = system.islands.place(bt, pot, bt.leak, i)
+        v = pot[bt.a] - pot[bt.b]
+        i = g * v + c
+        if len(system.vbranch):
+            i[system.vbranch] = x[system.n_node_rows :]
     if bt.shadow is not None and bt.shadow.any():
         # exact parallel duplicates of ideal sources or links share their group's current equally
         idx = np.arange(len(i))
@@ -167,19 +174,59 @@ def condition_estimate(system: System, factor) -> float:
     return norm_scaled * float(onenormest(inv))
 
 
+def current_bounds(bt: BranchTable, system: System, factor, x: np.ndarray, pot: np.ndarray, floor: float = 0.0) -> np.ndarray:
+    """The round-off bound of every element current of a solve (amperes).
+
+    A componentwise forward-error bound of the linear solve (Skeel's): the error of the
+    unknowns is at most ``|A^-1| (|A| |x| + |z|)`` times a few machine epsilons. ``|A^-1| y``
+    for a non-negative ``y`` is computed as ``|A^-1 y|`` with the solve's own factorisation
+    (one more right-hand side; exact for a nodal matrix, whose inverse is non-negative, and an
+    estimate where voltage rows make it indefinite, hence the safety factor). An element current
+    ``g (V_a - V_b) + c`` then carries ``|g| (dV_a + dV_b)`` plus its own rounding; a voltage-form
+    branch's current is an unknown. ``floor`` (the measured Kirchhoff residual) is added to every
+    bound: a current below what the solve balances to cannot be told from zero.
+    """
+    n = bt.n_elements
+    if system.size == 0:
+        return np.full(n, floor)
+    A = system.A
+    y = (np.abs(A) @ np.abs(x) if system.dense else abs(A) @ np.abs(x)) + np.abs(system.z)
+    dx = BOUND_EPS * np.abs(factor.solve(y))
+    dv = np.zeros(bt.n_nodes)
+    rows = system.row_of_node
+    mask = rows >= 0
+    dv[mask] = dx[rows[mask]]
+    pa, pb = np.abs(pot[bt.a]), np.abs(pot[bt.b])
+    g, c = np.abs(bt.g), np.abs(bt.c)
+    bound = g * (dv[bt.a] + dv[bt.b]) + BOUND_EPS * (g * (pa + pb) + c)
+    if len(system.vbranch):
+        bound[system.vbranch] = dx[system.n_node_rows :]
+    if bt.shadow is not None and bt.shadow.any():
+        bound[bt.shadow] = bound[bt.representative[bt.shadow]]
+    return bound + floor
+
+
+#: machine epsilon times a safety factor, for the componentwise round-off bound of currents
+BOUND_EPS = 16 * float(np.finfo(float).eps)
+
+
 def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool = False) -> Solution:
-    """Solve a linear netlist and verify the result.
+    """Solve a netlist and verify the result.
 
     The condition number is computed for small (dense) systems always, and for
     large ones when values span many decades, when the self-check is not clean,
-    or on request (``estimate_condition=True``).
+    or on request (``estimate_condition=True``). Parts of the network that only open switches,
+    blocked diodes or loads without supply join to the rest are solved as idle islands
+    (dcnet.analysis.islands); loads without supply draw nothing (``Solution.unsupplied``).
     """
     from .. import topology
+    from .islands import pinned_system
 
     bt = branch_table(net)
     warnings: list[str] = []
     if net.ground_rule and net.ground_rule != "ground statement":
         warnings.append(net.ground_rule)
+    unsupplied: list[str] = []
     if check_topology:
         try:
             warnings += topology.check(net, bt)
@@ -188,13 +235,19 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
             if err.span is None and name and net.has_element(name):
                 err.span = net.element(name).span
             raise
+        dead = topology.unsupplied(net, bt)
+        if len(dead):
+            g, c, nl = bt.g.copy(), bt.c.copy(), bt.nonlinear.copy()
+            g[dead] = c[dead] = 0.0
+            nl[dead] = False
+            bt = dataclasses.replace(bt, g=g, c=c, nonlinear=nl)
+            unsupplied = [bt.names[p] for p in dead]
     span = value_span(bt)
     if span > SPAN_WARN_DECADES:
         warnings.append(
             f"element conductances span {span:.0f} decades; results may lose precision "
             "(check for extreme resistances, e.g. a missing unit prefix)"
         )
-    newton = None
     if bt.is_nonlinear:
         from .newton import newton_solve
 
@@ -211,17 +264,21 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
         balance = verify(model, v, i, pot)
         warnings += _second_operating_points(net, model, v)
         warnings += _dropped_out(model, newton.modes, v)
-        sol = _finish(net, model, system, factor, x, pot, v, i, balance, warnings, refine=False)
+        sol = _finish(net, model, system, factor, x, pot, v, i, balance, warnings, refine=False, unsupplied=unsupplied)
         sol.newton_history = newton.history
         return sol
-    system = assemble(bt)
+    system = pinned_system(bt)
     x, factor = solve_system(system)
     pot, v, i = currents(bt, system, x)
     balance = verify(bt, v, i, pot)
-    return _finish(net, bt, system, factor, x, pot, v, i, balance, warnings, refine=True, span=span, estimate_condition=estimate_condition)
+    return _finish(
+        net, bt, system, factor, x, pot, v, i, balance, warnings, refine=True, span=span, estimate_condition=estimate_condition, unsupplied=unsupplied
+    )
 
 
-def _finish(net, bt, system, factor, x, pot, v, i, balance, warnings, *, refine: bool, span: float = 0.0, estimate_condition: bool = False) -> Solution:
+def _finish(
+    net, bt, system, factor, x, pot, v, i, balance, warnings, *, refine: bool, span: float = 0.0, estimate_condition: bool = False, unsupplied=()
+) -> Solution:
     """Refinement, conditioning and the verdict on the self-check; builds the Solution."""
     if system.dense or span > SPAN_WARN_DECADES or not balance["ok"] or estimate_condition:
         cond = condition_estimate(system, factor)
@@ -231,7 +288,7 @@ def _finish(net, bt, system, factor, x, pot, v, i, balance, warnings, *, refine:
             raise NumericalError(
                 f"the circuit matrix is numerically singular (condition number about {cond:.1g}); "
                 "no trustworthy answer can be computed",
-                hint="element values span too many decades; check for extreme resistances",
+                **_singular_culprits(net, bt, system, factor, span),
             )
         if bound > COND_WARN:
             warnings.append(
@@ -261,9 +318,66 @@ def _finish(net, bt, system, factor, x, pot, v, i, balance, warnings, *, refine:
         warnings.append(
             f"self-check residuals are larger than usual (Kirchhoff {balance['kcl_relative']:.2g}, power {balance['power_relative']:.2g} relative)"
         )
+    # currents within the solve's round-off are zero (their elements are idle)
+    bounds = current_bounds(bt, system, factor, x, pot, floor=balance["kcl_max_residual_A"])
+    i = np.where(np.abs(i) <= bounds, 0.0, i)
+    if system.islands:
+        warnings.append(_island_note(net, bt, system.islands, pot))
     sol = Solution(net, bt, pot, v, i, balance, warnings)
     sol.system, sol.factor = system, factor
+    sol.current_bounds = bounds
+    sol.islands = system.islands or None
+    sol.unsupplied = list(unsupplied)
     return sol
+
+
+def _island_note(net, bt, islands, pot) -> str:
+    from ..topology import _names
+
+    nodes = [bt.node_names[k] for part in islands.nodes for k in part]
+    by = sorted({bt.names[k] for cross in islands.crossing for k in cross}, key=bt.names.index)
+    shown = ", ".join(f"{bt.node_names[part[0]]} {pot[part[0]]:.4g} V" for part in islands.nodes[:4])
+    return (
+        f"node(s) {_names(nodes)} are cut off by {_names(by)} (open, blocked or without supply): nothing flows "
+        f"there, and their potential is set only by leakage (shown where a 1 pS leak per open element would "
+        f"hold it: {shown})"
+    )
+
+
+def _singular_culprits(net, bt, system, factor, span: float) -> dict:
+    """Culprits and a hint for a numerically singular matrix: the nodes whose common potential
+    the matrix barely fixes (the direction it nearly annihilates, found by inverse iteration
+    with the solve's own factorisation) and the elements that join them to the rest."""
+    from ..topology import _names
+
+    hint = "element values span too many decades; check for extreme resistances" if span > SPAN_WARN_DECADES else None
+    try:
+        rng = np.random.default_rng(0)
+        w = rng.standard_normal(system.size)
+        for _ in range(4):
+            w = factor.solve(w)
+            w /= np.abs(w).max() or 1.0
+    except Exception:  # noqa: BLE001 - a diagnosis must never hide the refusal itself
+        return {"hint": hint}
+    rows = system.row_of_node
+    nodal = np.zeros(bt.n_nodes)
+    mask = rows >= 0
+    nodal[mask] = np.abs(w[rows[mask]])
+    if not nodal.any():
+        return {"hint": hint}
+    weak = nodal >= 0.5 * nodal.max()
+    edge = np.flatnonzero(weak[bt.a] != weak[bt.b])
+    names = [bt.names[k] for k in edge][:12]
+    nodes = [bt.node_names[k] for k in np.flatnonzero(weak)][:12]
+    text = (
+        f"the potential of node(s) {_names(nodes)} is barely fixed: they join the rest of the circuit only through "
+        f"{_names(names) if names else 'nothing'}"
+    )
+    if span > SPAN_WARN_DECADES:
+        text += f"; element values also span {span:.0f} decades (check for extreme resistances)"
+    else:
+        text += " (give such a part a real connection, or check for a missing unit prefix on those elements)"
+    return {"hint": text, "culprits": tuple(names), "element": names[0] if names else None}
 
 
 def _dropped_out(model: BranchTable, modes: dict, v: np.ndarray) -> list[str]:
@@ -298,7 +412,9 @@ def _second_operating_points(net, model: BranchTable, v: np.ndarray) -> list[str
         g, c = model.g.copy(), model.c.copy()
         g[p] = c[p] = 0.0
         alone = dataclasses.replace(model, g=g, c=c)
-        system = assemble(alone)
+        from .islands import pinned_system
+
+        system = pinned_system(alone)
         try:
             x, factor = solve_system(system)
         except NumericalError:

@@ -243,6 +243,7 @@ class Study:
         self.nominal_solution = None
         self._bt = None
         self._sparse = None
+        self._sections = None
 
     # ------------------------------------------------------------ pickling
     def __getstate__(self):
@@ -250,6 +251,7 @@ class Study:
         state["nominal_solution"] = None
         state["_bt"] = None
         state["_sparse"] = None
+        state["_sections"] = None
         return state
 
     @property
@@ -293,6 +295,8 @@ class Study:
         bt = self.bt
         if bt.is_nonlinear:
             self.mode, self.reason = "rebuild", "nonlinear circuit: solved point by point (Newton iterations for each sample)"
+        elif sol.islands or sol.unsupplied:
+            self.mode, self.reason = "rebuild", "parts cut off by open switches or loads without supply: solved point by point"
         elif bt.shadow is not None and bt.shadow.any():
             self.mode, self.reason = "rebuild", "parallel ideal sources or links share their current: solved point by point"
         elif len(self.net.elements) and (bt.is_voltage.sum() + bt.n_nodes - 1) > DENSE_LIMIT:
@@ -355,8 +359,8 @@ class Study:
             changed = self.element_samples(values, S)
         src = self.net
         net = Netlist(title=src.title, ground=src.ground, ground_rule=src.ground_rule, limits=src.limits, values=src.values, exprs=src.exprs, files=src.files, banks=src.banks, notes=src.notes)
-        if hasattr(src, "phases"):
-            net.phases = src.phases
+        net.phases = src.phases
+        net.practice = src.practice
         for el in src.elements:
             ch = changed.get(el.name)
             if ch:
@@ -421,7 +425,7 @@ class Study:
         return g, c, e, cols_by_kind
 
     def _batch(self, changed, arrays, S, start) -> ChunkResult:
-        from ..checks.samples import run as sample_checks
+        from ..checks import run_samples
 
         g, c, e, cols = arrays
         bt = self.bt
@@ -431,14 +435,15 @@ class Study:
                 self._sparse = SparsePattern(bt, g, c)
             sparse = self._sparse
         sol = solve_batch(bt, g, c, e, sparse=sparse)
-        samples = Samples(self.net, bt, sol, cols, changed, S)
+        if self._sections is None:
+            from .sections import sections
+
+            self._sections = sections(self.net, bt)
+        samples = Samples(self.net, bt, sol, cols, changed, S, sections=self._sections)
         samples.gce = (g, c, e)
-        if self.fault:
-            samples.fault, samples.nominal = True, self.nominal_solution
-            samples.g = np.broadcast_to(g, (S, len(bt.g)))
         q = np.column_stack([samples.quantity(spec)[1] for spec in self.quantity_specs]) if self.quantity_specs else np.zeros((S, 0))
         checks = {}
-        for cs in sample_checks(self.net, samples):
+        for cs in run_samples(self.net, samples, fault=self.fault):
             checks[(cs["rule"], cs["subject"])] = cs
         return ChunkResult(start, q, checks, "solved together" if sparse is None else "solved together (sparse, one ordering)")
 
@@ -506,20 +511,24 @@ class Study:
 
 
 CHECKS_BATCHED = (
-    "string imbalance (banks and limit imbalance), cell current and voltage window, cable ampacity, "
-    "fuse loading, voltage drop (loads and limit drop), limit current and limit voltage; "
-    "not per sample: prospective fault current (add --fault); a bank's circulating current at rest is a quantity (--show BANK.circulating_A)"
+    "every rule of dcnet check, written once on arrays: wiring, string imbalance (banks and limit imbalance) and "
+    "circulating current at rest, cell current and voltage window, cable ampacity and protection, fuse loading, "
+    "voltage drop (loads and limit drop), limit current and limit voltage; "
+    "not per sample: prospective fault current (add --fault)"
 )
-CHECKS_BATCHED_FAULT = CHECKS_BATCHED.replace(
-    "; not per sample: prospective fault current (add --fault);", ", fault current through rated fuses;"
-)
+CHECKS_BATCHED_FAULT = CHECKS_BATCHED.replace("; not per sample: prospective fault current (add --fault)", ", and the prospective fault current")
 
 
 # ------------------------------------------------------- per-sample results
 class Samples:
-    """Results of many samples of one circuit, with the lookups of a Solution (arrays, one entry per sample)."""
+    """Results of many samples of one circuit, with the lookups of a Solution (arrays, one entry
+    per sample): the view every check rule reads (see dcnet.checks.view for the list)."""
 
-    def __init__(self, net: Netlist, bt, sol, cols, changed, S: int):
+    single = False
+    nonlinear = False
+    islands = None
+
+    def __init__(self, net: Netlist, bt, sol, cols, changed, S: int, sections=None):
         self.netlist = net
         self.branches = bt
         self.potentials = sol.potentials
@@ -530,16 +539,51 @@ class Samples:
         self.changed = changed  # element -> key -> (S,)
         self.n = S
         self.solution = sol  # the batch solution (its matrices take further right-hand sides)
-        self.g = None  # (S, elements) branch conductances, when the per-sample fault check needs them
-        self.nominal = None  # the nominal Solution (where fault points are chosen)
-        self.fault = False  # also the prospective fault current through rated fuses
-        self.gce = None  # the samples' (g, c, e) branch arrays (a bank's circulating current)
+        self.bounds = getattr(sol, "bounds", None)
+        self.gce = None  # the samples' (g, c, e) branch arrays
+        self.notes: list[str] = []
+        self.unsupplied: list[str] = []
+        self.is_voltage = bt.is_voltage
+        self._sections = sections
+
+    @property
+    def g(self):
+        return np.broadcast_to(self.gce[0], (self.n, len(self.branches.g)))
+
+    @property
+    def c(self):
+        return np.broadcast_to(self.gce[1], (self.n, len(self.branches.g)))
+
+    @property
+    def e(self):
+        return np.broadcast_to(self.gce[2], (self.n, len(self.branches.g)))
+
+    @property
+    def rows(self):
+        return self.solution.rows
+
+    def solve_more(self, B: np.ndarray) -> np.ndarray:
+        return self.solution.solve_more(B)
+
+    @property
+    def sections(self):
+        """Feeds and section voltages, found on the nominal circuit's structure (dcnet.analysis.sections)."""
+        if self._sections is None:
+            from .sections import sections
+
+            self._sections = sections(self.netlist, self.branches)
+        return self._sections
 
     def _pos(self, name: str) -> int:
         return self.netlist.element_position(name)
 
     def current(self, name: str) -> np.ndarray:
         return self.i[:, self._pos(name)]
+
+    def bound(self, name: str) -> np.ndarray:
+        if self.bounds is None:
+            return np.zeros(self.n)
+        return self.bounds[:, self._pos(name)]
 
     def voltage(self, name: str, other: str | None = None) -> np.ndarray:
         if other is not None:
@@ -587,7 +631,8 @@ class Samples:
             own = {col: arr[:, j] for col, arr in self.cols[el.kind].items()}
         else:
             own = {col: np.full(self.n, arr[j]) for col, arr in cols.items()}
-        ctx = {"max_emf": self.max_emf, "system_voltage": self.system_voltage}
+        sv = self.sections.group_voltage(self.potentials, int(self.branches.a[k]))
+        ctx = {"max_emf": self.max_emf, "system_voltage": self.system_voltage, "section_voltage": sv}
         return {key: np.broadcast_to(np.asarray(val, dtype=float), (self.n,)) for key, val in KINDS[el.kind].extras(own, self.v[:, k], self.i[:, k], ctx).items()}
 
     def quantity(self, spec: str) -> tuple[str, np.ndarray, str]:
@@ -610,20 +655,15 @@ class Samples:
             unit = attr.rsplit("_", 1)[-1] if "_" in attr else ""
             return (spec, ex[attr], {"pct": "%", "ohm": "Ohm"}.get(unit, unit))
         if spec not in net.node_index and name in net.banks:
-            from ..checks.imbalance import BANK_QUANTITIES
+            from ..checks.imbalance import BANK_QUANTITIES, bank_quantity
 
-            return (spec, self.bank_quantity(name, attr), BANK_QUANTITIES[attr])
+            return (spec, bank_quantity(net, self, name, attr), BANK_QUANTITIES[attr])
         return (f"{spec}.potential", self.potential(spec), "V")
 
-    def bank_quantity(self, name: str, attr: str) -> np.ndarray:
-        """A bank's ``imbalance_pct`` or ``circulating_A`` per sample (as the Solution's); the
-        circulating current solves the bank alone for every sample together."""
-        from ..checks.samples import _imbalance_values
-
-        bank = self.netlist.banks[name]
-        if attr == "imbalance_pct":
-            return _imbalance_values(np.column_stack([self.current(cells[-1]) for cells in bank["strings"]]))
-        from ..checks.imbalance import at_rest_value, bank_alone
+    def circulating(self, bank: dict) -> tuple[np.ndarray, np.ndarray]:
+        """Per sample: the largest string current with the bank alone at rest, and its round-off
+        bound (the bank alone solved for every sample together)."""
+        from ..netlist import bank_alone
         from .batch import SparsePattern, solve_batch
         from .branches import branch_table
 
@@ -634,7 +674,7 @@ class Samples:
         sparse = SparsePattern(sbt, g, c) if sbt.solved_voltage.sum() + sbt.n_nodes - 1 > DENSE_LIMIT else None
         sol = solve_batch(sbt, g, c, e, sparse=sparse)
         last = [sub.element_position(cells[-1]) for cells in bank["strings"]]
-        return at_rest_value(np.abs(sol.i[:, last]).max(axis=1), c)
+        return np.abs(sol.i[:, last]).max(axis=1), sol.bounds[:, last].max(axis=1)
 
 
 # ------------------------------------------------------------- comparison

@@ -2,25 +2,37 @@
 
 from __future__ import annotations
 
-from . import Verdict, elements_of
+import numpy as np
+
+from . import Series, elements_of
+
+__all__ = ["rules", "cable_ampacity"]
 
 
-def check(net, sol) -> list[Verdict]:
-    try:
-        from ..data import ampacity
-    except ImportError:  # pragma: no cover
-        return []
-    out: list[Verdict] = []
+def cable_ampacity(s, el) -> tuple[np.ndarray, str]:
+    """The ampacity of a cable per sample (NaN where the table has none) and the source (or why none)."""
+    from ..data import ampacity
+
+    v = el.values
+    area = np.broadcast_to(np.asarray(s.value(el.name, "area"), dtype=float), (s.n,))
+    insulation = np.broadcast_to(np.asarray(s.value(el.name, "insulation", 75.0), dtype=float), (s.n,))
+    amps = np.full(s.n, np.nan)
+    source = ""
+    for a, t in np.unique(np.column_stack([area, insulation]), axis=0):
+        found, source = ampacity(float(a), v.get("awg"), v.get("metal", "copper"), float(t))
+        amps[(area == a) & (insulation == t)] = np.nan if found is None else found
+    return amps, source
+
+
+def rules(net, s) -> list[Series]:
+    out: list[Series] = []
     for el in elements_of(net, "cable"):
-        v = el.values
-        area = v.get("area")
-        if area is None:
+        if el.values.get("area") is None:
             continue  # r= per length: no cross-section to look up
-        insulation = v.get("insulation", 75.0)
-        amps, source = ampacity(area, v.get("awg"), v.get("metal", "copper"), insulation)
-        i = abs(sol.current(el.name))
-        if amps is None:
-            out.append(Verdict("cable ampacity", el.name, i, None, "A", True, source, "not checked", "info"))
+        amps, source = cable_ampacity(s, el)
+        i = np.abs(s.current(el.name))
+        if np.isnan(amps).all():
+            out.append(Series("cable ampacity", el.name, "A", source, i, np.nan, True, sense="info", detail="not checked"))
             continue
-        out.append(Verdict("cable ampacity", el.name, i, amps, "A", i <= amps, source))
+        out.append(Series("cable ampacity", el.name, "A", source, i, amps, i <= amps, judged=~np.isnan(amps)))
     return out

@@ -6,17 +6,21 @@ sizing rule for continuous loads (NEC 210.20(A), from memory; common practice).
 
 from __future__ import annotations
 
-from . import Verdict, elements_of
+import numpy as np
+
+from . import Series, elements_of
+
+__all__ = ["rules", "CONTINUOUS_FACTOR", "SOURCE"]
 
 CONTINUOUS_FACTOR = 0.8
 SOURCE = "80 % of rating for continuous current: the 125 % sizing rule for continuous loads (NEC 210.20(A), from memory; common practice)"
 
 
-def check(net, sol) -> list[Verdict]:
-    out: list[Verdict] = []
+def rules(net, s) -> list[Series]:
+    out: list[Series] = []
     for el in elements_of(net, "fuse"):
-        rating = el.values["rating"]
-        i = abs(sol.current(el.name))
+        rating = np.asarray(s.value(el.name, "rating"), dtype=float)
+        i = np.abs(s.current(el.name))
         limit = CONTINUOUS_FACTOR * rating
-        out.append(Verdict("fuse loading", el.name, i, limit, "A", i <= limit, SOURCE, f"rating {rating:g} A"))
+        out.append(Series("fuse loading", el.name, "A", SOURCE, i, limit, i <= limit, detail=f"rating {float(np.ravel(rating)[0]):g} A"))
     return out

@@ -78,6 +78,9 @@ class Branches:
     g: np.ndarray
     c: np.ndarray
     e: np.ndarray
+    #: conductance an element leaks while the model holds it open (g = 0): NaN where none.
+    #: It is not stamped; it only places parts that open elements cut off (analysis/islands.py)
+    leak: np.ndarray | None = None
 
 
 @dataclass
@@ -167,10 +170,10 @@ class Kind:
         """A plain word per element: what it is doing.
 
         Sources say delivering or absorbing (by the sign of their power); other
-        kinds say conducting; any element with (next to) no current is idle.
+        kinds say conducting; any element with no current is idle (the solve sets currents
+        within its round-off bound to zero).
         """
-        scale = max(float(np.abs(i).max(initial=0.0)), 1e-300)
-        idle = np.abs(i) <= 1e-12 * scale
+        idle = i == 0
         if self.is_source:
             busy = np.where(v * i < 0, "delivering", "absorbing")
         else:

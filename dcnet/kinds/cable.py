@@ -189,12 +189,11 @@ class Cable(Kind):
         return admittance(1 / cols["r"])
 
     def extras(self, cols, v, i, ctx):
-        ref = ctx.get("system_voltage", 0.0)
-        if np.ndim(ref):  # one reference per sample (studies)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                drop = np.where(ref > 0, np.abs(v) / ref * 100.0, np.nan)
-        else:
-            drop = np.abs(v) / ref * 100.0 if ref > 0 else np.full(len(v), np.nan)
+        # drop as a share of the section voltage of the cable's conductor group (the one
+        # definition of dcnet.analysis.sections); NaN where the group has no section
+        ref = np.asarray(ctx.get("section_voltage", np.nan), dtype=float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            drop = np.where(ref > 0, np.abs(v) / ref * 100.0, np.nan)
         return {"resistance_ohm": cols["r"], "drop_pct": drop}
 
 

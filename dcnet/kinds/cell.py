@@ -25,6 +25,9 @@ class Cell(Kind):
         eta = values.get("eta")
         if eta is not None and not 0.0 < eta <= 1.0:
             raise ValueRangeError(f"eta (coulombic efficiency) must lie above 0% and at most 100%, got {eta * 100:g}%")
+        n = values.get("cells")
+        if n is not None and (n != int(n) or n < 1):
+            raise ValueRangeError(f"cells (cells in series inside the element) must be a whole number of at least 1, got {n:g}")
         k = values.get("peukert")
         if k is not None and not 1.0 <= k <= 2.0:
             raise ValueRangeError(f"peukert exponent must lie between 1 and 2, got {k:g}", hint="lead-acid batteries are typically 1.1 to 1.3")
@@ -38,8 +41,7 @@ class Cell(Kind):
         return {"loss_W": i * i * cols["r"], "emf_power_W": cols["emf"] * i}
 
     def state(self, cols, v, i):
-        scale = max(float(np.abs(i).max(initial=0.0)), 1e-300)
-        return np.where(np.abs(i) <= 1e-12 * scale, "idle", np.where(i > 0, "charging", "discharging"))
+        return np.where(i == 0, "idle", np.where(i > 0, "charging", "discharging"))
 
 
 KIND = Cell(
@@ -50,6 +52,7 @@ KIND = Cell(
         "r": Prop("r", RESISTANCE, required=True, check=positive, doc="internal resistance"),
         "capacity": Prop("capacity", CHARGE, check=positive, doc="rated capacity"),
         "chemistry": Prop("chemistry", form="word", words=CHEMISTRIES, doc="cell chemistry"),
+        "cells": Prop("cells", DIMENSIONLESS, check=positive, doc="cells in series inside the element (a 12 V lead-acid battery has 6), for the voltage window"),
         "soc": Prop("soc", DIMENSIONLESS, doc="state of charge (0..100 %)"),
         "vmin": Prop("vmin", VOLTAGE, doc="lowest allowed terminal voltage"),
         "vmax": Prop("vmax", VOLTAGE, doc="highest allowed terminal voltage"),
@@ -61,6 +64,6 @@ KIND = Cell(
         "peukert": Prop("peukert", DIMENSIONLESS, check=positive, doc="Peukert exponent (discharge), default 1"),
         "rate": Prop("rate", TIME, check=positive, doc="discharge time at which capacity is rated (Peukert), default 20 h"),
     },
-    columns=("emf", "r", "capacity", "vmin", "vmax", "imax"),
+    columns=("emf", "r", "capacity", "vmin", "vmax", "imax", "cells"),
     is_source=True,
 )

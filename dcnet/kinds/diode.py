@@ -9,9 +9,13 @@ Two forms:
   (default 25 degC): ``i = is * (exp(v / (n * Vt)) - 1)`` with ``Vt = k T / q``.
 
 Optional ``roff`` is the reverse (leakage) resistance. A blocked piecewise-linear diode
-without ``roff`` leaks 1 pS (one picoampere per volt), a numerical floor that keeps a node
-behind it solvable. The first node is the anode: current flows from the first node to the
-second when it conducts. A blocked diode reports its reverse voltage (``reverse_V``).
+without ``roff`` is open: it carries nothing, and a part of the network that only blocked
+diodes (or open switches) join to the rest is an idle island, placed where a 1 pS leak per
+blocked diode would hold it (``dcnet.analysis.islands``), never a 1e-12 S entry in the matrix
+beside kilosiemens ones. For the topology check and as the Newton start a blocked diode still
+counts as a connection (its starting model leaks 1 pS). The first node is the anode: current
+flows from the first node to the second when it conducts. A blocked diode reports its
+reverse voltage (``reverse_V``).
 """
 
 from __future__ import annotations
@@ -48,6 +52,11 @@ class Diode(Kind):
         roff = cols["roff"]
         return np.where(roff > 0, 1.0 / np.where(roff > 0, roff, 1.0), G_FLOOR)
 
+    def _gblocked(self, cols):
+        """Conductance of a blocked diode in the solved model: 1/roff, or open (0) without roff."""
+        roff = cols["roff"]
+        return np.where(roff > 0, 1.0 / np.where(roff > 0, roff, 1.0), 0.0)
+
     def _vt(self, cols):
         return cols["n"] * K_OVER_Q * (cols["temp"] + 273.15)
 
@@ -72,7 +81,8 @@ class Diode(Kind):
         cond = pwl & (mode == CONDUCTING)
         with np.errstate(divide="ignore", invalid="ignore"):
             g_on = np.where(r > 0, 1.0 / r, 0.0)
-        g = np.where(cond, g_on, goff)
+        g = np.where(cond, g_on, np.where(junction, goff, self._gblocked(cols)))
+        leak = np.where(pwl & ~cond & ~(cols["roff"] > 0), G_FLOOR, np.nan)
         c = np.where(cond & ~ideal, -drop * g_on, 0.0)
         is_v = cond & ideal
         e = np.where(is_v, drop, 0.0)
@@ -90,7 +100,9 @@ class Diode(Kind):
             g[j] = gj
             c[j] = ij - gj * vj
             v_used[j] = vj
-        return mixed(is_v, g, c, e), mode, v_used
+        br = mixed(is_v, g, c, e)
+        br.leak = leak
+        return br, mode, v_used
 
     def exact_current(self, cols, v, i, mode):
         drop, r = cols["drop"], cols["r"]
@@ -100,16 +112,15 @@ class Diode(Kind):
             pwl_on = np.where(r > 0, (v - drop) / r, i)
             vt = np.where(junction, self._vt(cols), 1.0)
             jc = np.where(junction, cols["is"] * (np.exp(np.minimum(v / vt, 700.0)) - 1.0) + goff * v, 0.0)
-        out = np.where(mode == CONDUCTING, pwl_on, goff * v)
+        out = np.where(mode == CONDUCTING, pwl_on, self._gblocked(cols) * v)
         return np.where(junction, jc, out)
 
     def extras(self, cols, v, i, ctx):
         return {"reverse_V": np.where(v < 0, -v, 0.0)}
 
     def state(self, cols, v, i):
-        scale = max(float(np.abs(i).max(initial=0.0)), 1e-300)
         junction = ~np.isnan(cols["is"])
-        forward = np.where(junction, v > 0.5 * self._vt(cols) * 10, (i > 1e-9 * scale) & (v >= cols["drop"] * (1 - 1e-9)))
+        forward = np.where(junction, v > 0.5 * self._vt(cols) * 10, (i > 0) & (v >= cols["drop"] * (1 - 1e-9)))
         return np.where(forward, "conducting", "blocked")
 
 

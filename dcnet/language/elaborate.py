@@ -40,6 +40,7 @@ LIMIT_RULES: dict[str, dict[str, str]] = {
     "imbalance": {"max": "quantity", "among": "words"},
     "drop": {"max": "quantity", "from": "word", "to": "word"},
     "current": {"max": "quantity", "min": "quantity", "of": "words"},
+    "circulating": {"max": "quantity", "among": "words"},
     "voltage": {"max": "quantity", "min": "quantity", "of": "words", "from": "word", "to": "word"},
 }
 
@@ -660,6 +661,25 @@ def _ground(st: _State, s: Statement, file: str) -> None:
     st.ground_span = span
 
 
+def _practice(st: _State, s: Statement, file: str) -> None:
+    """The rule set the circuit is built to (data/practices.tsv): limits that depend on it."""
+    from ..data import practice_names
+
+    name = s.args[0]
+    span = Span(file, *s.arg_pos[0], len(name))
+    if st.scope.depth:
+        raise InputError("practice belongs at the top level, not inside a block", span=span)
+    known = practice_names()
+    if name not in known:
+        near = suggest(name, known)
+        raise UnknownNameError(
+            f"unknown practice '{name}'", span=span, hint=(f"did you mean '{near}'? " if near else "") + "practices: " + ", ".join(known)
+        )
+    if st.net.practice is not None and st.net.practice != name:
+        raise InputError(f"practice is already set to '{st.net.practice}'", span=span, hint="a circuit is built to one practice")
+    st.net.practice = name
+
+
 def _include(st: _State, s: Statement, file: str, folder: Path) -> None:
     rel = s.args[0]
     span = Span(file, s.line, s.arg_pos[0][1], len(rel) + 2)
@@ -761,6 +781,7 @@ _HANDLERS.update(
         "ground": _ground,
         "title": _title,
         "limit": _limit,
+        "practice": _practice,
         "use": _use,
     }
 )

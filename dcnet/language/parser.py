@@ -30,7 +30,7 @@ __all__ = [
     "KEYWORDS",
 ]
 
-KEYWORDS = ("title", "let", "part", "ground", "include", "limit", "block", "end", "use", "phase")
+KEYWORDS = ("title", "let", "part", "ground", "include", "limit", "block", "end", "use", "phase", "practice")
 
 
 # ----------------------------------------------------------------- records
@@ -101,6 +101,9 @@ class _Builder(Transformer):
 
     def ground(self, items):
         return self._make("ground", items[:1], (), items[0])
+
+    def practice(self, items):
+        return self._make("practice", items[:1], (), items[0])
 
     def include(self, items):
         tok = items[0]
@@ -445,6 +448,7 @@ _USAGE = {
     "let": "let NAME = VALUE (optionally ± TOLERANCE)",
     "part": "part NAME KIND key=value ...",
     "ground": "ground NODE",
+    "practice": "practice NAME (general, marine, premises)",
     "include": 'include "relative/path.dcn"',
     "limit": "limit RULE key=value ...",
     "block": "block NAME (PORT, PORT, ...)",

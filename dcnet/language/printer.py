@@ -65,6 +65,8 @@ def to_text(net: Netlist) -> str:
         lines.append(" ".join(["limit", lim.rule, *parts]))
     if net.ground is not None and net.ground_rule == "ground statement":
         lines.append(f"ground {net.ground}")
+    if net.practice:
+        lines.append(f"practice {net.practice}")
     return "\n".join(lines) + "\n"
 
 

@@ -25,7 +25,6 @@ HAND_WRITTEN = {
     "source-shorted-by-link": "source S a gnd emf=12V\nlink K a gnd\nload L a gnd r=1Ohm\nground gnd\n",
     "current-source-no-return": "supply I a b current=2A\nsupply J b c current=2A\nload L a c r=1Ohm\nground b\n",
     "source-on-itself": "source S a a emf=12V\nload L a gnd r=1Ohm\nground gnd\n",
-    "open-switch-island": "cell A a gnd emf=12V r=10mOhm\nswitch S a c state=open\nload L c d r=1Ohm\nground gnd\n",
     "misspelt-node": "cell A pos gnd emf=12V r=1Ohm\nload L1 pos gnd r=1Ohm\nresistor R pos middle r=1Ohm\nload L2 midle gnd2 r=1Ohm\nground gnd\n",
     "three-source-loop": "source S a b emf=12V\nsource T b c emf=1V\nsource U a c emf=12V\nload L a b r=1Ohm\nground b\n",
     "ground-not-a-node": "cell A a gnd emf=12V r=10mOhm\nload L a gnd r=1Ohm\nground gdn\n",

@@ -1,0 +1,190 @@
+"""Sections of a DC system: which sources feed each load, along which conductors.
+
+This is the one definition of voltage drop that every check, study and report uses.
+
+* **Conductors** are the elements that carry a pole from one place to another: cables,
+  links, fuses, resistors, closed switches, and diodes while they conduct. Nodes joined by
+  conductors form a *conductor group* (a bus bar and everything wired straight to it).
+  Sources (cells, sources, supplies) and loads separate groups.
+* A load's **feeding terminals** are the nearest source terminals along conductors: from the
+  load's first node the nearest positive source terminal, from its second node the nearest
+  negative one, "nearest" by the series resistance of the conductors in between (Dijkstra's
+  shortest paths). A 12 V load on the mid point of a 24 V string is fed by the lower battery
+  only; a load on a battery's terminals behind an isolator diode is fed by that battery, not
+  through the diode; a load that can only be reached through a diode or a fuse has them on its
+  path, and they are named.
+* The **section voltage** of a load is the voltage between its feeding terminals, and its
+  **drop** is the section voltage less the load's own voltage: the voltage lost along the
+  conductors of both poles (and any diode or fuse on them), as a share of the section voltage.
+* A **cable's** ``drop_pct`` is its voltage as a share of the section voltage of the loads its
+  conductor group feeds (the largest, where several); in a group that feeds no load, of the
+  largest terminal voltage of the sources in the group; otherwise not defined (NaN).
+
+Structures are found from the netlist once per set of conducting elements; evaluating them
+takes only node potentials, one row per sample.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["Sections", "sections", "CONDUCTOR_KINDS"]
+
+#: kinds that carry a pole along (a diode only while it conducts, a switch only when closed)
+CONDUCTOR_KINDS = ("cable", "link", "fuse", "resistor", "switch", "diode")
+
+
+@dataclass
+class Feed:
+    """How one load is fed: its feeding terminals and the conductors on the way."""
+
+    plus: int | None  # node index of the nearest positive source terminal (None: none reached)
+    minus: int | None
+    plus_source: str | None  # the source element whose terminal it is
+    minus_source: str | None
+    path: list[int] = field(default_factory=list)  # element positions on both paths
+
+
+@dataclass
+class Sections:
+    labels: np.ndarray  # conductor group of every node
+    feeds: dict[int, Feed]  # load position -> feed
+    #: per conductor group: the (plus, minus) terminal pairs whose voltage is its section voltage
+    group_pairs: dict[int, list[tuple[int, int]]]
+
+    def section_voltage(self, pot: np.ndarray, load: int) -> np.ndarray:
+        """Section voltage of a load for potentials ``pot`` (nodes, or samples x nodes); NaN if unfed."""
+        f = self.feeds.get(load)
+        pot = np.atleast_2d(pot)
+        if f is None or f.plus is None or f.minus is None:
+            return np.full(pot.shape[0], np.nan)
+        return pot[:, f.plus] - pot[:, f.minus]
+
+    def group_voltage(self, pot: np.ndarray, node: int) -> np.ndarray:
+        """Section voltage of the conductor group of ``node`` (the largest of its pairs); NaN if none."""
+        pot = np.atleast_2d(pot)
+        pairs = self.group_pairs.get(int(self.labels[node]), [])
+        if not pairs:
+            return np.full(pot.shape[0], np.nan)
+        p = np.array([a for a, _ in pairs])
+        m = np.array([b for _, b in pairs])
+        return np.abs(pot[:, p] - pot[:, m]).max(axis=1)
+
+
+def _conducting(bt, conducting_diodes: np.ndarray | None) -> np.ndarray:
+    mask = np.zeros(bt.n_elements, dtype=bool)
+    for kind in CONDUCTOR_KINDS:
+        if kind not in bt.groups:
+            continue
+        pos, cols = bt.groups[kind]
+        if kind == "switch":
+            mask[pos] = cols["closed"] != 0
+        elif kind == "diode":
+            mask[pos] = False if conducting_diodes is None else conducting_diodes[pos]
+        else:
+            mask[pos] = True
+    return mask & (bt.a != bt.b)
+
+
+def _resistance(bt, g: np.ndarray, is_voltage: np.ndarray, k: np.ndarray) -> np.ndarray:
+    with np.errstate(divide="ignore"):
+        r = np.where(is_voltage[k] | (g[k] == 0), 0.0, 1.0 / np.abs(g[k]))
+    return r + 1e-12 * (r.max(initial=0.0) + 1e-9)  # csgraph drops explicit zeros: keep every edge
+
+
+def sections(net, bt, *, g: np.ndarray | None = None, is_voltage: np.ndarray | None = None, conducting_diodes: np.ndarray | None = None) -> Sections:
+    """Conductor groups, each load's feeding terminals, and each group's section pairs.
+
+    ``g``/``is_voltage`` are the solved model's (a conducting diode's resistance), defaulting to
+    the branch table's; ``conducting_diodes`` marks the diodes that conduct (element mask).
+    """
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components, dijkstra
+
+    from ..kinds import KINDS
+
+    g = bt.g if g is None else g
+    is_voltage = bt.is_voltage if is_voltage is None else is_voltage
+    n = bt.n_nodes
+    cond = np.flatnonzero(_conducting(bt, conducting_diodes))
+    adj = coo_matrix((np.ones(len(cond)), (bt.a[cond], bt.b[cond])), shape=(n, n))
+    _, labels = connected_components(adj, directed=False)
+    # source terminals: positive and negative, with the element they belong to
+    plus_of: dict[int, str] = {}
+    minus_of: dict[int, str] = {}
+    src_pairs: list[tuple[int, int, int]] = []  # (plus node, minus node, position)
+    for kind_name, (pos, _cols) in bt.groups.items():
+        if not KINDS[kind_name].is_source:
+            continue
+        for p in pos:
+            a, b = int(bt.a[p]), int(bt.b[p])
+            if a == b:
+                continue
+            plus_of.setdefault(a, bt.names[p])
+            minus_of.setdefault(b, bt.names[p])
+            src_pairs.append((a, b, int(p)))
+    feeds: dict[int, Feed] = {}
+    loads = bt.groups.get("load", (np.zeros(0, dtype=np.int64), {}))[0]
+    loads = [int(p) for p in loads if bt.a[p] != bt.b[p]]
+    if loads and (plus_of or minus_of):
+        w = _resistance(bt, g, is_voltage, cond)
+        lo = np.minimum(bt.a[cond], bt.b[cond]).astype(np.int64)
+        hi = np.maximum(bt.a[cond], bt.b[cond]).astype(np.int64)
+        # between two nodes keep the conductor of least resistance (coo -> csr would add them)
+        order = np.lexsort((w, hi, lo))
+        keep = np.ones(len(order), dtype=bool)
+        keep[1:] = (lo[order][1:] != lo[order][:-1]) | (hi[order][1:] != hi[order][:-1])
+        pick = order[keep]
+        best_edge = {(int(lo[k]), int(hi[k])): int(cond[k]) for k in pick}
+        W = coo_matrix((w[pick], (lo[pick], hi[pick])), shape=(n, n)).tocsr()
+        starts = sorted({int(bt.a[p]) for p in loads} | {int(bt.b[p]) for p in loads})
+        dist, pred = dijkstra(W, directed=False, indices=starts, return_predecessors=True)
+        row = {s: k for k, s in enumerate(starts)}
+        plus_nodes = np.array(sorted(plus_of), dtype=np.int64)
+        minus_nodes = np.array(sorted(minus_of), dtype=np.int64)
+
+        def nearest(start: int, nodes: np.ndarray) -> int | None:
+            if not len(nodes):
+                return None
+            d = dist[row[start], nodes]
+            k = int(np.argmin(d))
+            return int(nodes[k]) if np.isfinite(d[k]) else None
+
+        def path(start: int, end: int) -> list[int]:
+            out, node = [], end
+            r = row[start]
+            while node != start and node >= 0:
+                prev = int(pred[r, node])
+                if prev < 0:
+                    break
+                out.append(best_edge[(min(prev, node), max(prev, node))])
+                node = prev
+            return out[::-1]
+
+        for p in loads:
+            a, b = int(bt.a[p]), int(bt.b[p])
+            tp, tm = nearest(a, plus_nodes), nearest(b, minus_nodes)
+            f = Feed(tp, tm, plus_of.get(tp) if tp is not None else None, minus_of.get(tm) if tm is not None else None)
+            if tp is not None:
+                f.path += path(a, tp)
+            if tm is not None:
+                f.path += path(b, tm)
+            feeds[p] = f
+    group_pairs: dict[int, list[tuple[int, int]]] = {}
+    for p, f in feeds.items():
+        if f.plus is None or f.minus is None:
+            continue
+        for node in (bt.a[p], bt.b[p]):
+            lab = int(labels[node])
+            if (f.plus, f.minus) not in group_pairs.setdefault(lab, []):
+                group_pairs[lab].append((f.plus, f.minus))
+    fed = set(group_pairs)  # groups whose section a load's feed gives
+    for a, b, _p in src_pairs:
+        for node in (a, b):
+            lab = int(labels[node])
+            if lab not in fed and (a, b) not in group_pairs.setdefault(lab, []):
+                group_pairs[lab].append((a, b))
+    return Sections(labels, feeds, group_pairs)
+
