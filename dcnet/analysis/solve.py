@@ -268,7 +268,17 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
         sol.newton_history = newton.history
         return sol
     system = pinned_system(bt)
-    x, factor = solve_system(system)
+    try:
+        x, factor = solve_system(system)
+    except NumericalError as err:
+        found = _singular_culprits(net, bt, system, None, span)
+        if found.get("culprits") or found.get("hint"):
+            err.hint = found.get("hint")
+            err.culprits = found.get("culprits", ())
+            err.element = found.get("element")
+            if err.element and err.span is None and net.has_element(err.element):
+                err.span = net.element(err.element).span
+        raise
     pot, v, i = currents(bt, system, x)
     balance = verify(bt, v, i, pot)
     return _finish(
@@ -344,40 +354,62 @@ def _island_note(net, bt, islands, pot) -> str:
     )
 
 
+def _weak_parts(bt: BranchTable) -> tuple[list[str], list[str]]:
+    """Nodes joined to the rest only by conductances below a round-off share of the largest
+    (1e-12 of it): (their names, the weak elements that join them)."""
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    gmax = float(np.abs(bt.g).max(initial=0.0))
+    strong = bt.is_voltage | (np.abs(bt.g) > 1e-12 * gmax)
+    strong &= bt.a != bt.b
+    n = bt.n_nodes
+    adj = coo_matrix((np.ones(int(strong.sum())), (bt.a[strong], bt.b[strong])), shape=(n, n))
+    labels = connected_components(adj, directed=False)[1]
+    weak_nodes = labels != labels[bt.ground]
+    if not weak_nodes.any():
+        return [], []
+    edge = np.flatnonzero((weak_nodes[bt.a] != weak_nodes[bt.b]) & (bt.g != 0))
+    return [bt.node_names[k] for k in np.flatnonzero(weak_nodes)], [bt.names[k] for k in edge]
+
+
 def _singular_culprits(net, bt, system, factor, span: float) -> dict:
-    """Culprits and a hint for a numerically singular matrix: the nodes whose common potential
-    the matrix barely fixes (the direction it nearly annihilates, found by inverse iteration
-    with the solve's own factorisation) and the elements that join them to the rest."""
+    """Culprits and a hint for a (numerically) singular matrix: the nodes whose common potential
+    the matrix barely fixes and the elements that join them to the rest: found structurally
+    (conductances below 1e-12 of the largest), else as the direction the matrix nearly
+    annihilates (inverse iteration with the solve's own factorisation)."""
     from ..topology import _names
 
-    hint = "element values span too many decades; check for extreme resistances" if span > SPAN_WARN_DECADES else None
-    try:
-        rng = np.random.default_rng(0)
-        w = rng.standard_normal(system.size)
-        for _ in range(4):
-            w = factor.solve(w)
-            w /= np.abs(w).max() or 1.0
-    except Exception:  # noqa: BLE001 - a diagnosis must never hide the refusal itself
+    nodes, names = _weak_parts(bt)
+    if not nodes and factor is not None:
+        try:
+            rng = np.random.default_rng(0)
+            w = rng.standard_normal(system.size)
+            for _ in range(4):
+                w = factor.solve(w)
+                w /= np.abs(w).max() or 1.0
+            rows = system.row_of_node
+            nodal = np.zeros(bt.n_nodes)
+            mask = rows >= 0
+            nodal[mask] = np.abs(w[rows[mask]])
+            if nodal.any():
+                weak = nodal >= 0.5 * nodal.max()
+                nodes = [bt.node_names[k] for k in np.flatnonzero(weak)]
+                names = [bt.names[k] for k in np.flatnonzero(weak[bt.a] != weak[bt.b])]
+        except Exception:  # noqa: BLE001 - a diagnosis must never hide the refusal itself
+            pass
+    if not nodes:
+        hint = "element values span too many decades; check for extreme resistances" if span > SPAN_WARN_DECADES else None
         return {"hint": hint}
-    rows = system.row_of_node
-    nodal = np.zeros(bt.n_nodes)
-    mask = rows >= 0
-    nodal[mask] = np.abs(w[rows[mask]])
-    if not nodal.any():
-        return {"hint": hint}
-    weak = nodal >= 0.5 * nodal.max()
-    edge = np.flatnonzero(weak[bt.a] != weak[bt.b])
-    names = [bt.names[k] for k in edge][:12]
-    nodes = [bt.node_names[k] for k in np.flatnonzero(weak)][:12]
     text = (
         f"the potential of node(s) {_names(nodes)} is barely fixed: they join the rest of the circuit only through "
         f"{_names(names) if names else 'nothing'}"
     )
     if span > SPAN_WARN_DECADES:
-        text += f"; element values also span {span:.0f} decades (check for extreme resistances)"
+        text += f", and element values span {span:.0f} decades (check for extreme resistances or a missing unit prefix)"
     else:
-        text += " (give such a part a real connection, or check for a missing unit prefix on those elements)"
-    return {"hint": text, "culprits": tuple(names), "element": names[0] if names else None}
+        text += " (give such a part a real connection, or check those elements' values)"
+    return {"hint": text, "culprits": tuple(names[:12]), "element": names[0] if names else None}
 
 
 def _dropped_out(model: BranchTable, modes: dict, v: np.ndarray) -> list[str]:
