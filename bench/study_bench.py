@@ -81,7 +81,7 @@ def bench_spread(samples: int, repeat: int) -> dict:
         chunk = {n: v[start : start + size] for n, v in values.items()}
         s = len(chunk[names[0]])
         g, c, e, _ = study._branch_arrays(study.element_samples(chunk, s), s)
-        _, A, z, _ = batch.dense_chunk(study.bt, g, c, e)
+        _, A, z, _, _ = batch.dense_chunk(study.bt, g, c, e)
         stacks.append((A.copy(), z.copy()))
     ours, theirs = [], []
     for _ in range(repeat):

@@ -134,7 +134,8 @@ def dense_chunk(bt: BranchTable, g, c, e, *, refine: bool = True):
     """Assemble and solve the dense systems of one chunk of samples.
 
     ``g``, ``c``, ``e`` are ``(samples, elements)`` arrays (or one row shared by all samples).
-    Returns (x, A, z, layout) with ``x`` of shape ``(samples, unknowns)``.
+    Returns (x, A, z, layout, W) with ``x`` of shape ``(samples, unknowns)`` and ``W`` the
+    solutions of the round-off bound's right-hand sides (``mna.bound_rhs``), solved in the same call.
     """
     S = max(np.shape(a)[0] if np.ndim(a) == 2 else 1 for a in (g, c, e))
     row, N, vb, I, J, src, sign, z_tgt, z_src, z_sign = _pattern(bt, g, c)
@@ -161,15 +162,27 @@ def dense_chunk(bt: BranchTable, g, c, e, *, refine: bool = True):
     if not finite.all():
         k = int(np.flatnonzero(~finite)[0])
         raise NumericalError(f"the circuit matrix holds a value that is not finite (sample {k + 1})")
-    x = _stacked_solve(A, z)
-    return x, A, z, (row, N, vb)
+    # row sums of |A| over the potential and the current unknowns, from the entries' values (an
+    # upper bound where entries add up), for the round-off bound's right-hand sides (mna.bound_rhs)
+    slot = (I + m * (J >= N))[None, :] + (2 * m * np.arange(S))[:, None]
+    sums = np.bincount(slot.ravel(), weights=np.abs(V).ravel(), minlength=2 * m * S).reshape(S, 2, m).transpose(0, 2, 1)
+    x, W = _stacked_solve(A, z, N, sums)
+    return x, A, z, (row, N, vb), W
 
 
-def _stacked_solve(A: np.ndarray, z: np.ndarray) -> np.ndarray:
-    if A.shape[1] == 0:
-        return np.zeros((A.shape[0], 0))
+def _stacked_solve(A: np.ndarray, z: np.ndarray, N: int, sums: np.ndarray):
+    """Every sample's solution and its round-off bound columns (mna.bound_rhs; ``sums`` are the
+    row sums of |A| over the potential and the current unknowns), in one stacked call."""
+    S, m = A.shape[0], A.shape[1]
+    if m == 0:
+        return np.zeros((S, 0)), np.zeros((S, 0, 3))
+    B = np.empty((S, m, 4))
+    B[:, :, 0] = z
+    B[:, :, 1:3] = sums
+    B[:, :, 3] = 1.0
     try:
-        return np.linalg.solve(A, z[..., None])[..., 0]
+        X = np.linalg.solve(A, B)
+        return X[:, :, 0].copy(), X[:, :, 1:]
     except np.linalg.LinAlgError:
         # find the singular sample(s) to name them; the others are still solved
         for k in range(A.shape[0]):
@@ -223,6 +236,7 @@ def sparse_samples(bt: BranchTable, g, c, e, pattern: SparsePattern):
     V = _values(src, sign, g, S)
     zv = _values(z_src, z_sign, c, S)
     x = np.empty((S, m))
+    W = np.empty((S, m, 3))
     mats, rhs = [], []
     for k in range(S):
         A = pattern.matrix(V[k])
@@ -234,10 +248,14 @@ def sparse_samples(bt: BranchTable, g, c, e, pattern: SparsePattern):
             lu = splu((A @ pattern.Pc).tocsc(), permc_spec="NATURAL")
         except RuntimeError as exc:
             raise NumericalError(f"the circuit matrix is singular (sample {k + 1}: {exc})") from None
-        x[k] = pattern.Pc @ lu.solve(z)
+        from .mna import bound_rhs
+
+        X = pattern.Pc @ lu.solve(np.column_stack([z, bound_rhs(A, N)]))
+        x[k] = X[:, 0]
+        W[k] = X[:, 1:]
         mats.append((A, lu))
         rhs.append(z)
-    return x, mats, np.array(rhs), (row, N, vb)
+    return x, mats, np.array(rhs), (row, N, vb), W
 
 
 def currents_batch(bt: BranchTable, layout, x: np.ndarray, g, c):
@@ -288,9 +306,9 @@ def verify_batch(bt: BranchTable, pot, v, i, g, c) -> dict:
 def solve_batch(bt: BranchTable, g, c, e, *, sparse: SparsePattern | None = None) -> BatchSolution:
     """Solve every sample of one chunk and verify each (refining those that need it)."""
     if sparse is None:
-        x, A, z, layout = dense_chunk(bt, g, c, e)
+        x, A, z, layout, W = dense_chunk(bt, g, c, e)
     else:
-        x, mats, z, layout = sparse_samples(bt, g, c, e, sparse)
+        x, mats, z, layout, W = sparse_samples(bt, g, c, e, sparse)
     pot, v, i = currents_batch(bt, layout, x, g, c)
     bal = verify_batch(bt, pot, v, i, g, c)
     bad = np.flatnonzero(~bal["ok"])
@@ -316,14 +334,14 @@ def solve_batch(bt: BranchTable, g, c, e, *, sparse: SparsePattern | None = None
                 hint="element values may span too many decades in this sample; check the range of the study",
             )
     # currents within each sample's round-off are zero, as in a single solve (solve.current_bounds)
-    bounds = bounds_batch(bt, layout, A if sparse is None else mats, sparse, x, z, pot, g, c, bal["kcl_max_residual_A"])
+    bounds = bounds_batch(bt, layout, W, x, z, pot, g, c, bal["kcl_max_residual_A"])
     i = np.where(np.abs(i) <= bounds, 0.0, i)
     sol = BatchSolution(pot, v, i, bal, (A if sparse is None else mats, sparse, layout))
     sol.bounds = bounds
     return sol
 
 
-def bounds_batch(bt: BranchTable, layout, mats, sparse, x, z, pot, g, c, floor) -> np.ndarray:
+def bounds_batch(bt: BranchTable, layout, W, x, z, pot, g, c, floor) -> np.ndarray:
     """The round-off bound of every element current of every sample (solve.current_bounds)."""
     from .solve import BOUND_EPS
 
@@ -331,14 +349,10 @@ def bounds_batch(bt: BranchTable, layout, mats, sparse, x, z, pot, g, c, floor) 
     S = x.shape[0]
     if x.shape[1] == 0:
         return np.broadcast_to(np.asarray(floor, dtype=float)[:, None], (S, bt.n_elements)).copy()
-    if sparse is None:
-        y = np.einsum("sij,sj->si", np.abs(mats), np.abs(x)) + np.abs(z)
-        dx = BOUND_EPS * np.abs(np.linalg.solve(mats, y[..., None])[..., 0])
-    else:
-        dx = np.empty_like(x)
-        for k, (A, lu) in enumerate(mats):
-            yk = abs(A) @ np.abs(x[k]) + np.abs(z[k])
-            dx[k] = BOUND_EPS * np.abs(sparse.Pc @ lu.solve(yk))
+    xv = np.abs(x[:, :N]).max(axis=1, initial=0.0)
+    xi = np.abs(x[:, N:]).max(axis=1, initial=0.0)
+    zn = np.abs(z).max(axis=1, initial=0.0)
+    dx = BOUND_EPS * (np.abs(W[:, :, 0]) * xv[:, None] + np.abs(W[:, :, 1]) * xi[:, None] + np.abs(W[:, :, 2]) * zn[:, None])
     dv = np.zeros((S, bt.n_nodes))
     mask = row >= 0
     dv[:, mask] = dx[:, row[mask]]
@@ -348,4 +362,6 @@ def bounds_batch(bt: BranchTable, layout, mats, sparse, x, z, pot, g, c, floor) 
     bound = ga * (dv[:, bt.a] + dv[:, bt.b]) + BOUND_EPS * (ga * (pa + pb) + ca)
     if len(vb):
         bound[:, vb] = dx[:, N:]
+    if bt.shadow is not None and bt.shadow.any():
+        bound[:, bt.shadow] = bound[:, bt.representative[bt.shadow]]
     return bound + np.asarray(floor, dtype=float)[:, None]

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["System", "assemble", "solve_system", "DENSE_LIMIT"]
+__all__ = ["System", "assemble", "solve_system", "bound_rhs", "DENSE_LIMIT"]
 
 #: systems with at most this many unknowns are solved densely
 DENSE_LIMIT = 400
@@ -124,6 +124,7 @@ class Factor:
         from ..errors import NumericalError
 
         self.system = system
+        self.bound_columns = None  # solutions of bound_rhs, when the solve computed them
         if system.dense:
             self._lu = None
             if system.size and not np.all(np.isfinite(system.A)):
@@ -149,7 +150,34 @@ class Factor:
         return self._lu.solve(z)
 
 
+def bound_rhs(A, N: int) -> np.ndarray:
+    """Right-hand sides for the round-off bound of a solve (dcnet.analysis.solve.current_bounds):
+    the row sums of ``|A|`` over the potential unknowns, over the branch-current unknowns, and ones.
+    Known before the solve, they are solved with the system's own right-hand side in one call."""
+    absA = np.abs(A) if isinstance(A, np.ndarray) else abs(A)
+    m = A.shape[0]
+    out = np.zeros((m, 3))
+    if isinstance(A, np.ndarray):
+        out[:, 0] = absA[:, :N].sum(axis=1)
+        out[:, 1] = absA[:, N:].sum(axis=1)
+    else:
+        out[:, 0] = np.asarray(absA[:, :N].sum(axis=1)).ravel()
+        out[:, 1] = np.asarray(absA[:, N:].sum(axis=1)).ravel()
+    out[:, 2] = 1.0
+    return out
+
+
 def solve_system(system: System) -> tuple[np.ndarray, Factor]:
-    """Factor and solve; return the solution vector and the factor (for refinement or reuse)."""
+    """Factor and solve; return the solution vector and the factor (for refinement or reuse).
+
+    The round-off bound's right-hand sides (:func:`bound_rhs`) are solved in the same call and
+    kept as ``factor.bound_columns``.
+    """
     f = Factor(system)
-    return f.solve(system.z), f
+    if system.size == 0:
+        f.bound_columns = np.zeros((0, 3))
+        return np.zeros(0), f
+    B = np.column_stack([system.z, bound_rhs(system.A, system.n_node_rows)])
+    X = np.asarray(f.solve(B)).reshape(B.shape)
+    f.bound_columns = X[:, 1:]
+    return X[:, 0].copy(), f

@@ -177,33 +177,45 @@ def condition_estimate(system: System, factor) -> float:
 def current_bounds(bt: BranchTable, system: System, factor, x: np.ndarray, pot: np.ndarray, floor: float = 0.0) -> np.ndarray:
     """The round-off bound of every element current of a solve (amperes).
 
-    A componentwise forward-error bound of the linear solve (Skeel's): the error of the
-    unknowns is at most ``|A^-1| (|A| |x| + |z|)`` times a few machine epsilons. ``|A^-1| y``
-    for a non-negative ``y`` is computed as ``|A^-1 y|`` with the solve's own factorisation
-    (one more right-hand side; exact for a nodal matrix, whose inverse is non-negative, and an
-    estimate where voltage rows make it indefinite, hence the safety factor). An element current
-    ``g (V_a - V_b) + c`` then carries ``|g| (dV_a + dV_b)`` plus its own rounding; a voltage-form
-    branch's current is an unknown. ``floor`` (the measured Kirchhoff residual) is added to every
-    bound: a current below what the solve balances to cannot be told from zero.
+    A componentwise forward-error bound of the linear solve in the manner of Skeel's: the error
+    of the unknowns is at most a few machine epsilons times ``|A^-1| (|A| |x| + |z|)``, bounded
+    further by ``|A^-1| (|A|_V 1 ||x_V|| + |A|_I 1 ||x_I|| + 1 ||z||)`` (potentials V and branch
+    currents I taken apart), whose right-hand sides are known before the solve and solved with
+    it (:func:`dcnet.analysis.mna.bound_rhs`). ``|A^-1| y`` for a non-negative ``y`` is taken as
+    ``|A^-1 y|`` (exact for a nodal matrix, whose inverse is non-negative; an estimate where voltage
+    rows make it indefinite, hence the safety factor). An element current ``g (V_a - V_b) + c``
+    carries ``|g| (dV_a + dV_b)`` plus its own rounding; a voltage-form branch's current is an
+    unknown. ``floor`` (the measured Kirchhoff residual) is added to every bound: a current below
+    what the solve balances to cannot be told from zero.
     """
+    from .mna import bound_rhs
+
     n = bt.n_elements
     if system.size == 0:
         return np.full(n, floor)
-    A = system.A
-    y = (np.abs(A) @ np.abs(x) if system.dense else abs(A) @ np.abs(x)) + np.abs(system.z)
-    dx = BOUND_EPS * np.abs(factor.solve(y))
+    W = getattr(factor, "bound_columns", None)
+    if W is None:
+        W = np.asarray(factor.solve(bound_rhs(system.A, system.n_node_rows))).reshape(system.size, 3)
+    return _bounds_from(bt, system.row_of_node, system.n_node_rows, system.vbranch, x, system.z, W, pot, bt.g, bt.c) + floor
+
+
+def _bounds_from(bt, rows, N, vb, x, z, W, pot, g, c) -> np.ndarray:
+    """Element current bounds from the bound columns W (unknowns x 3), for one sample."""
+    xv = float(np.abs(x[:N]).max(initial=0.0))
+    xi = float(np.abs(x[N:]).max(initial=0.0))
+    zn = float(np.abs(z).max(initial=0.0))
+    dx = BOUND_EPS * (np.abs(W[:, 0]) * xv + np.abs(W[:, 1]) * xi + np.abs(W[:, 2]) * zn)
     dv = np.zeros(bt.n_nodes)
-    rows = system.row_of_node
     mask = rows >= 0
     dv[mask] = dx[rows[mask]]
     pa, pb = np.abs(pot[bt.a]), np.abs(pot[bt.b])
-    g, c = np.abs(bt.g), np.abs(bt.c)
-    bound = g * (dv[bt.a] + dv[bt.b]) + BOUND_EPS * (g * (pa + pb) + c)
-    if len(system.vbranch):
-        bound[system.vbranch] = dx[system.n_node_rows :]
+    ga, ca = np.abs(g), np.abs(c)
+    bound = ga * (dv[bt.a] + dv[bt.b]) + BOUND_EPS * (ga * (pa + pb) + ca)
+    if len(vb):
+        bound[vb] = dx[N:]
     if bt.shadow is not None and bt.shadow.any():
         bound[bt.shadow] = bound[bt.representative[bt.shadow]]
-    return bound + floor
+    return bound
 
 
 #: machine epsilon times a safety factor, for the componentwise round-off bound of currents
