@@ -14,10 +14,20 @@ with a Peukert exponent ``k`` (lead-acid) ``I * dt / C * (I / I_H)^(k - 1)`` whe
 ``I_H = C / H`` is the current that empties the battery in its rated time ``H`` (``rate``,
 default 20 h): at constant current a full battery then lasts ``t = H * (C / (I H))^k``.
 
+A phase also ends when a cell's state of charge reaches 0 % while it discharges. With the
+rate held over a step (Euler) the state of charge is linear in the step, so the moment the
+first cell empties has a closed form, ``soc / -rate``: the step is cut there and the phase
+ends at that moment, whatever the step size.
+
 The energy ledger integrates every element's absorbed power with the same rule, so it
-closes to round-off by Tellegen's theorem; a cell's share is split into energy stored (EMF
-times current, times ``eta`` when charging), charge not stored (coulombic loss) and heat in
-its internal resistance.
+closes to round-off by Tellegen's theorem. A cell's share, EMF times current plus the heat
+in its internal resistance, is split step by step into: energy stored (net), which is the
+EMF times the charge the state of charge actually gained or lost (``E * C * dsoc``, after
+clipping at 0 % and 100 %); charge not stored while charging (coulombic loss, and
+overcharge: all the charge once the cell is full, or the part of a step beyond full); and,
+with a Peukert exponent, the capacity lost to the discharge rate: the charge the state of
+charge lost beyond the charge that left the terminals, times the EMF (negative below the
+rated current ``I_H``, where Peukert's law gives back more than the rated capacity).
 """
 
 from __future__ import annotations
@@ -50,6 +60,9 @@ PHASE_PROPS: dict[str, Any] = {
     "at": "word",
 }
 
+EMPTY = "a cell reached 0 % state of charge"
+RATE_LOSS = "capacity lost to the discharge rate (Peukert)"
+CLOSED_SOC = 0.01  # a cycle is closed when no cell's state of charge moved by more than this
 DEFAULT_MAX = 100 * 3600.0
 DEFAULT_STEP = 60.0
 MAX_SOC_STEP = 0.002  # largest change of any cell's state of charge in one step
@@ -163,7 +176,7 @@ class CycleResult:
             ("phases", ", ".join(f"{p['phase']} ({p['duration_s'] / 3600:.2f} h, {p['ended_by']})" for p in self.phases)),
             ("ledger closure", f"{abs(led['closure_relative']) * 100:.2g} % of the energy moved"),
         ]
-        if rt["cells_round_trip"] is not None and abs(rt["mean_soc_change"]) < 0.01:
+        if rt["cells_round_trip"] is not None and rt["closed_cycle"]:
             summary.append(("round trip at the cells' terminals", f"{rt['cells_round_trip'] * 100:.1f} %"))
         if self.circulating["bank"]:
             c = self.circulating
@@ -270,15 +283,20 @@ class _Cells:
         (overcharge turns to heat and gas)."""
         return np.where(soc >= 1.0, 0.0, self.eta)
 
-    def dsoc_dt(self, i: np.ndarray, soc: np.ndarray | None = None) -> np.ndarray:
-        """Rate of change of state of charge for passive-sign currents i (charging positive)."""
-        eta = self.eta if soc is None else self.accepted(i, soc)
-        out = np.where(i > 0, eta * i / self.capacity, i / self.capacity)
+    def peukert_factor(self, i: np.ndarray) -> np.ndarray:
+        """State of charge removed per unit of charge drawn: ``(|I| / I_H)^(k - 1)`` while a cell
+        with a Peukert exponent discharges, exactly 1 otherwise."""
+        out = np.ones_like(i, dtype=float)
         peuk = (i < 0) & (self.k != 1.0)
         if peuk.any():
             i_h = self.capacity / self.rate
-            out = np.where(peuk, -(np.abs(i) / self.capacity) * (np.abs(i) / i_h) ** (self.k - 1.0), out)
+            out = np.where(peuk, (np.abs(i) / i_h) ** (self.k - 1.0), out)
         return out
+
+    def dsoc_dt(self, i: np.ndarray, soc: np.ndarray | None = None) -> np.ndarray:
+        """Rate of change of state of charge for passive-sign currents i (charging positive)."""
+        eta = self.eta if soc is None else self.accepted(i, soc)
+        return np.where(i > 0, eta * i / self.capacity, i / self.capacity * self.peukert_factor(i))
 
 
 class _PhaseSolver:
@@ -428,6 +446,9 @@ def run(net, phases: list[Phase] | None = None, *, step: float | None = None, fo
     stored = np.zeros(cells.n)
     heat_cells = np.zeros(cells.n)
     coulombic = np.zeros(cells.n)
+    rate_loss = np.zeros(cells.n)  # EMF times the charge the state of charge lost beyond the terminal charge (Peukert), J
+    soc_up = np.zeros(cells.n)  # sum of the rises of each cell's state of charge
+    soc_down = np.zeros(cells.n)  # sum of its falls
     ah_in = np.zeros(cells.n)
     ah_out = np.zeros(cells.n)
     term_in = np.zeros(cells.n)  # energy into the cells' terminals while they charge, J
@@ -455,14 +476,31 @@ def run(net, phases: list[Phase] | None = None, *, step: float | None = None, fo
             if _crossed(cond, _probe(cond, net, cells, soc, pot, v, i)):
                 reason = f"{cond.describe()} at the start"
                 limit = 0.0
+        emptied = False
         while t - t_start < limit - 1e-9:
             icell = i[cells.pos]
             rate = cells.dsoc_dt(icell, soc)
+            draining = rate < 0
+            if np.any(draining & (soc <= 0.0)):
+                # an empty cell would have to give charge it has not got: the phase ends now
+                reason = EMPTY + (" at the start" if t == t_start else "")
+                emptied = True
+                break
             dt = min(hmax, limit - (t - t_start))
             fastest = float(np.abs(rate).max(initial=0.0))
             if fastest > 0:
                 dt = min(dt, MAX_SOC_STEP / fastest)
             dt = max(dt, 1e-6)
+            # exact empty event: with the rate fixed over the step, soc + rate * dt is linear
+            # in dt, and the first cell to empty does so at soc / -rate
+            empties = np.zeros(cells.n, dtype=bool)
+            if draining.any():
+                t_empty = np.full(cells.n, np.inf)
+                t_empty[draining] = soc[draining] / -rate[draining]
+                first = float(t_empty.min())
+                if first <= dt:
+                    dt = first
+                    empties = t_empty <= first
             # record the start of the step
             times.append(t)
             socs.append(soc.copy())
@@ -471,6 +509,7 @@ def run(net, phases: list[Phase] | None = None, *, step: float | None = None, fo
             labels.append(idx)
             p = v * i
             new_soc = soc + rate * dt
+            new_soc[empties] = 0.0  # soc + rate * (soc / -rate), without its round-off
             pot2, v2, i2, g2 = solver.solve(cells.emf(new_soc), cells.r(new_soc))
             # event location: shorten the step to the crossing (Euler states are linear in dt)
             hit = None
@@ -499,16 +538,38 @@ def run(net, phases: list[Phase] | None = None, *, step: float | None = None, fo
                         hit = (dt_try, cond, trial, pt, vt, it, gt)
             if hit is not None:
                 dt, cond, new_soc, pot2, v2, i2, g2 = hit
+            # a step never goes past the first empty cell (dt <= soc / -rate), so a draining cell
+            # at or below 0 % is empty to round-off: it ends at 0 exactly, and the clip below
+            # only ever refuses charge at 100 %
+            low = draining & (new_soc <= 0.0)
+            new_soc[low] = 0.0
+            if hit is not None:
                 reason = cond.describe()
+                emptied = False  # (a cell left empty ends the next discharge at its start)
+            elif low.any():
+                reason = EMPTY
+                emptied = True
+            soc_next = np.clip(new_soc, 0.0, 1.0)
             # ledger (left-rectangle rule for every element alike: the ledger closes exactly)
             energy += p * dt
             r_now = cells.r(soc)
             emf_now = cells.emf(soc)
-            chem = emf_now * icell * dt
+            chem = emf_now * icell * dt  # EMF times the charge through the terminals
             charging = icell > 0
             accepted = cells.accepted(icell, soc)
-            stored += np.where(charging, accepted * chem, chem)
-            coulombic += np.where(charging, (1 - accepted) * chem, 0.0)
+            factor = cells.peukert_factor(icell)
+            # state of charge the rate asked for but the clip at 100 % refused, as energy: the
+            # part of a charging step beyond full is overcharge, not stored
+            refused = emf_now * cells.capacity * (new_soc - soc_next)
+            # stored: EMF times the charge the state of charge gained or lost (E C dsoc)
+            stored += np.where(charging, accepted * chem, factor * chem) - refused
+            coulombic += np.where(charging, (1 - accepted) * chem, 0.0) + refused
+            # discharging: the state of charge fell by factor * charge drawn; the excess over the
+            # charge drawn, times the EMF (exactly 0 without a Peukert exponent)
+            rate_loss += np.where(charging, 0.0, (1 - factor) * chem)
+            dsoc = soc_next - soc
+            soc_up += np.maximum(dsoc, 0.0)
+            soc_down += np.maximum(-dsoc, 0.0)
             heat_cells += icell * icell * r_now * dt
             pcell = p[cells.pos]
             term_in += np.maximum(pcell, 0.0) * dt
@@ -521,18 +582,16 @@ def run(net, phases: list[Phase] | None = None, *, step: float | None = None, fo
                 if c_now > circ["max_A"]:
                     circ.update(max_A=float(c_now), time_s=t, bank=bank, phase=ph.label)
             t += dt
-            soc = np.clip(new_soc, 0.0, 1.0)
+            soc = soc_next
             pot, v, i = pot2, v2, i2
             if progress and sys.stderr.isatty() and _time.perf_counter() - last_print > 0.2:
                 last_print = _time.perf_counter()
                 frac_done = (t - t_start) / limit if limit else 1.0
                 print(f"\r  phase {ph.label}: {frac_done * 100:5.1f} % of {limit / 3600:.3g} h", end="", file=sys.stderr)
-            if hit is not None:
+            if hit is not None or emptied:
                 break
-            if np.any((soc <= 0.0) & (cells.dsoc_dt(i[cells.pos], soc) < 0)):
-                reason = "a cell reached 0 % state of charge"
-                notes.append(f"phase {ph.label}: stopped when a cell was empty")
-                break
+        if emptied:
+            notes.append(f"phase {ph.label}: stopped when a cell was empty")
         if progress and sys.stderr.isatty():
             print("\r" + " " * 60 + "\r", end="", file=sys.stderr)
         solves += solver.solves
@@ -554,8 +613,14 @@ def run(net, phases: list[Phase] | None = None, *, step: float | None = None, fo
     pots.append(pot.copy())
     labels.append(len(phases) - 1)
 
-    ledger = _ledger(net, energy, cells, stored, heat_cells, coulombic, term_in, term_out, soc)
-    throughput = {n: {"charged_Ah": float(a), "discharged_Ah": float(b)} for n, a, b in zip(cells.names, ah_in, ah_out)}
+    ledger = _ledger(net, energy, cells, stored, heat_cells, coulombic, rate_loss, term_in, term_out, soc)
+    # charged/discharged: charge through the terminals; soc_gained/soc_lost: the charge the
+    # state of charge rose and fell by (C times its rises and falls), which differs from the
+    # terminal charge by eta, overcharge and, with a Peukert exponent, the discharge rate
+    throughput = {
+        n: {"charged_Ah": float(a), "discharged_Ah": float(b), "soc_gained_Ah": float(u * c / 3600.0), "soc_lost_Ah": float(d * c / 3600.0)}
+        for n, a, b, u, d, c in zip(cells.names, ah_in, ah_out, soc_up, soc_down, cells.capacity)
+    }
     return CycleResult(
         netlist=net,
         times=np.array(times),
@@ -587,7 +652,7 @@ _CATEGORY = {
 }
 
 
-def _ledger(net, energy, cells: _Cells, stored, heat_cells, coulombic, term_in, term_out, soc) -> dict:
+def _ledger(net, energy, cells: _Cells, stored, heat_cells, coulombic, rate_loss, term_in, term_out, soc) -> dict:
     """Energy per category and per element (J and Wh), the closure of the balance, and the
     round-trip figures."""
     from ..kinds import KINDS
@@ -603,19 +668,24 @@ def _ledger(net, energy, cells: _Cells, stored, heat_cells, coulombic, term_in, 
             cat, value = _CATEGORY.get(el.kind, f"absorbed by {el.kind}s"), e_j
         cats[cat] = cats.get(cat, 0.0) + float(value)
         per_element[el.name] = {"category": cat, "J": float(value), "Wh": float(value) / 3600.0}
-    for n, s_j, h_j, c_j in zip(cells.names, stored, heat_cells, coulombic):
+    for n, s_j, h_j, c_j, p_j in zip(cells.names, stored, heat_cells, coulombic, rate_loss):
         per_element[n] = {
             "category": "cells",
             "stored_J": float(s_j),
             "heat_J": float(h_j),
             "not_stored_J": float(c_j),
+            "rate_loss_J": float(p_j),
             "stored_Wh": float(s_j) / 3600.0,
             "heat_Wh": float(h_j) / 3600.0,
+            "not_stored_Wh": float(c_j) / 3600.0,
+            "rate_loss_Wh": float(p_j) / 3600.0,
         }
     cats["stored in cells (net)"] = float(stored.sum())
     cats["heat in cells' internal resistance"] = float(heat_cells.sum())
     if coulombic.sum():
         cats["charge not stored (coulombic loss, overcharge)"] = float(coulombic.sum())
+    if np.any(cells.k != 1.0):
+        cats[RATE_LOSS] = float(rate_loss.sum())
     supplied = cats.get("put in by chargers and sources", 0.0)
     used = sum(v for k, v in cats.items() if k != "put in by chargers and sources")
     scale = sum(abs(v) for v in cats.values()) or 1.0
@@ -633,5 +703,9 @@ def _ledger(net, energy, cells: _Cells, stored, heat_cells, coulombic, term_in, 
             "cells_round_trip": (e_out / e_in) if e_in > 0 else None,
             "loads_over_supplied": (loads / supplied) if supplied > 0 else None,
             "mean_soc_change": float(np.mean(soc - cells.soc0)),
+            # the round trip compares like with like only if every cell came back (a mean
+            # change near zero can hide cells that moved apart)
+            "max_abs_soc_change": float(np.max(np.abs(soc - cells.soc0))),
+            "closed_cycle": bool(np.max(np.abs(soc - cells.soc0)) < CLOSED_SOC),
         },
     }

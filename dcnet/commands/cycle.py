@@ -86,12 +86,12 @@ def summary_text(result, file: str) -> str:
     out.append(f"  balance closes to {abs(led['closure_relative']) * 100:.2g} % of the energy moved")
     rt_ = led["round_trip"]
     if rt_["cells_round_trip"] is not None:
-        closed = abs(rt_["mean_soc_change"]) < 0.01
+        closed = rt_.get("closed_cycle", abs(rt_["mean_soc_change"]) < 0.01)
         out.append(
             f"  cells: {rt_['cells_terminal_in_Wh']:.4g} Wh in at their terminals while charging, "
             f"{rt_['cells_terminal_out_Wh']:.4g} Wh out while discharging"
             + (f": round trip {rt_['cells_round_trip'] * 100:.1f} %" if closed else
-               f"; not a closed cycle (mean state of charge moved {rt_['mean_soc_change'] * 100:+.1f} points), so no round-trip figure")
+               f"; not a closed cycle (a cell's state of charge moved up to {rt_.get('max_abs_soc_change', abs(rt_['mean_soc_change'])) * 100:.1f} points), so no round-trip figure")
         )
     if rt_["loads_over_supplied"] is not None:
         out.append(f"  loads received {rt_['loads_over_supplied'] * 100:.1f} % of what the chargers and sources put in")
