@@ -141,6 +141,15 @@ def equivalent(net, x: str, y: str, keep=(), *, keep_all: bool = False, time_bud
             culprits=tuple(bad),
         )
     sol = net.solve(checks=False)
+    isl = sol.islands
+    if isl and isl.labels[net.node_index[x]] != isl.labels[net.node_index[y]]:
+        from .symbolic import _cut_off
+
+        raise InputError(
+            f"{x} and {y} are not joined: {_cut_off(sol)}, so seen from them the circuit is open and has no "
+            "Thevenin or Norton equivalent",
+            hint="name two nodes of one connected part, or close what cuts the part off",
+        )
     v_th, r_th, _, _ = thevenin(sol, x, y)
     if abs(r_th) <= 1e-15 * max(1.0, abs(v_th)):
         r_th = 0.0

@@ -77,6 +77,14 @@ _UNITS = {"current": "A", "voltage": "V", "power": "W", "potential": "V", "betwe
 # --------------------------------------------------------------------------- public records
 
 
+def _cut_off(sol) -> str:
+    isl = sol.islands
+    bt = sol.branches
+    nodes = [bt.node_names[k] for part in isl.nodes for k in part][:8]
+    by = sorted({bt.names[k] for cross in isl.crossing for k in cross})[:8]
+    return f"node(s) {', '.join(nodes)} are cut off by {', '.join(by)}"
+
+
 @dataclass(frozen=True)
 class Kept:
     """A value kept as a symbol: a ``let`` name or an element property (``P1.r``)."""
@@ -486,6 +494,13 @@ class _Engine:
                 culprits=tuple(bt.names[p] for p in np.flatnonzero(bt.nonlinear)),
             )
         self.sol = net.solve(checks=False)
+        if self.sol.islands or self.sol.unsupplied:
+            raise InputError(
+                "formulas need every part of the circuit connected; "
+                + (f"{_cut_off(self.sol)}" if self.sol.islands else f"loads without supply: {', '.join(self.sol.unsupplied)}"),
+                hint="leave the cut-off part out of the file, or close what cuts it off, to get formulas",
+                culprits=tuple(self.sol.unsupplied),
+            )
         self.size = self.sol.system.size
         if self.size > MAX_UNKNOWNS:
             raise LimitError(

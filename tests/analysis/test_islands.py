@@ -75,3 +75,22 @@ def test_a_barely_connected_part_is_refused_naming_its_elements():
     err = info.value
     assert set(err.culprits) == {"RL", "RH"}
     assert "x, y" in err.hint
+
+
+CUT_OFF = "let r = 0.1Ohm\ncell B pos gnd emf=12V r=r\nload L pos gnd r=2Ohm\nswitch S1 pos mid state=open\nresistor R3 mid far r=1Ohm\nresistor R4 far gnd2 r=2Ohm\ncell C far gnd2 emf=5V r=1Ohm\nground gnd\n"
+
+
+def test_formulas_and_equivalents_of_a_circuit_with_a_cut_off_part():
+    from dcnet.errors import InputError
+
+    net = dcnet.parse(CUT_OFF)
+    with pytest.raises(InputError, match="cut off by S1"):
+        dcnet.formulas(net, ["L.current"], keep=["r"])
+    with pytest.raises(InputError, match="not joined"):
+        dcnet.equivalent(net, "far", "gnd")
+    # within the connected part the equivalent stands: r parallel with the 2 Ohm load (Thevenin)
+    eq = dcnet.equivalent(net, "pos", "gnd")
+    assert eq.r_th == pytest.approx(0.1 * 2 / 2.1, rel=1e-12)
+    # the cut-off part's own loop still carries its current: 5 V over 3 Ohm (Ohm's law)
+    sol = net.solve()
+    assert sol.current("R4") == pytest.approx(5 / 3, rel=1e-12)  # from far (C+) to gnd2
