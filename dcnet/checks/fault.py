@@ -152,6 +152,14 @@ class _Response:
         fin = np.isfinite(i_f)
         i_s = np.where(fin, i_f, 0.0)
         v = v_oc[:, None] - i_s * dw
+        if self.is_voltage[k] and k not in self.vpos:
+            # an exact parallel duplicate of an ideal branch shares its group's current equally
+            # (as the solve shows it: dcnet.analysis.solve.currents)
+            rep = int(bt.representative[k])
+            count = int((bt.representative == rep).sum())
+            way = 1.0 if bt.a[k] == bt.a[rep] else -1.0
+            v_r, i_r = self.branch_during(rep, i_f, w, ti, ri)
+            return v, way * i_r / count
         if self.is_voltage[k]:
             j = self.N + self.vpos[k]
             i_oc = self.X[:, j, 0]

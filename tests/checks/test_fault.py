@@ -215,3 +215,12 @@ def test_the_same_figure_per_sample_in_a_study(tmp_path):
     expected = 12.6 / (values["rc"] + 1e-3)
     assert series.value == pytest.approx(expected, rel=1e-9)
     assert list(series.ok) == list(expected <= 1700)
+
+
+def test_an_ideal_fuse_beside_an_ideal_link_takes_its_equal_share():
+    # found by the fuzz campaign (a traceback): equal ideal branches in parallel share their
+    # current equally (the circuit does not decide the split; the solve says so), in a fault too:
+    # 12 V over 1 Ohm into the fault, half of it through the fuse (Ohm's law)
+    text = "cell B p gnd emf=12V r=1Ohm\nlink K p q\nfuse F p q rating=20A interrupt=5kA\nload L q gnd r=10Ohm\nground gnd\n"
+    sol = dcnet.parse(text).solve()
+    assert fault(sol, "F").value == pytest.approx(6.0, rel=1e-12)
