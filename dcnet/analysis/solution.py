@@ -16,7 +16,44 @@ from ..kinds import KINDS
 from ..netlist import Netlist
 from .branches import BranchTable
 
-__all__ = ["Solution", "QuantityError"]
+__all__ = ["Solution", "QuantityError", "SampleLookups"]
+
+
+class SampleLookups:
+    """The lookups of solved samples as arrays, one entry per sample: ``potentials``, ``v`` and
+    ``i`` are (samples x nodes / elements) arrays and ``bounds`` the current round-off bounds.
+    Shared by a single solve seen as one sample (dcnet.checks.view.OneSample) and the samples of
+    a study (dcnet.analysis.studies.Samples)."""
+
+    netlist: Netlist
+    potentials: np.ndarray
+    v: np.ndarray
+    i: np.ndarray
+    bounds: np.ndarray | None = None
+
+    def _pos(self, name: str) -> int:
+        return self.netlist.element_position(name)
+
+    def current(self, name: str) -> np.ndarray:
+        return self.i[:, self._pos(name)]
+
+    def voltage(self, name: str, other: str | None = None) -> np.ndarray:
+        if other is not None:
+            return self.potential(name) - self.potential(other)
+        return self.v[:, self._pos(name)]
+
+    def power(self, name: str) -> np.ndarray:
+        k = self._pos(name)
+        return self.v[:, k] * self.i[:, k]
+
+    def potential(self, node: str) -> np.ndarray:
+        return self.potentials[:, self.netlist.node_index[node]]
+
+    def bound(self, name: str) -> np.ndarray:
+        """The round-off bound of an element's current, per sample (zero where none is known)."""
+        if self.bounds is None:
+            return np.zeros(self.i.shape[0])
+        return self.bounds[:, self._pos(name)]
 
 
 class QuantityError(KeyError):

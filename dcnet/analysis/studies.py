@@ -43,6 +43,7 @@ from ..units import Quantity
 from .batch import SparsePattern, solve_batch
 from .branches import branch_table
 from .mna import DENSE_LIMIT
+from .solution import SampleLookups
 
 __all__ = ["Study", "ChunkResult", "StudyResult", "CheckSeries", "study_from_file", "sweep", "spread", "axis_values", "sweep_values", "spread_values", "statistics"]
 
@@ -520,7 +521,7 @@ CHECKS_BATCHED_FAULT = CHECKS_BATCHED.replace("; not per sample: prospective fau
 
 
 # ------------------------------------------------------- per-sample results
-class Samples:
+class Samples(SampleLookups):
     """Results of many samples of one circuit, with the lookups of a Solution (arrays, one entry
     per sample): the view every check rule reads (see dcnet.checks.view for the list)."""
 
@@ -573,29 +574,6 @@ class Samples:
 
             self._sections = sections(self.netlist, self.branches)
         return self._sections
-
-    def _pos(self, name: str) -> int:
-        return self.netlist.element_position(name)
-
-    def current(self, name: str) -> np.ndarray:
-        return self.i[:, self._pos(name)]
-
-    def bound(self, name: str) -> np.ndarray:
-        if self.bounds is None:
-            return np.zeros(self.n)
-        return self.bounds[:, self._pos(name)]
-
-    def voltage(self, name: str, other: str | None = None) -> np.ndarray:
-        if other is not None:
-            return self.potential(name) - self.potential(other)
-        return self.v[:, self._pos(name)]
-
-    def power(self, name: str) -> np.ndarray:
-        k = self._pos(name)
-        return self.v[:, k] * self.i[:, k]
-
-    def potential(self, node: str) -> np.ndarray:
-        return self.potentials[:, self.netlist.node_index[node]]
 
     def value(self, name: str, key: str, default=None):
         """An element's value per sample (an array when the study changes it, else the scalar)."""

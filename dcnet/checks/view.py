@@ -18,10 +18,12 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..analysis.solution import SampleLookups
+
 __all__ = ["OneSample"]
 
 
-class OneSample:
+class OneSample(SampleLookups):
     """A :class:`~dcnet.analysis.solution.Solution` as one sample."""
 
     single = True
@@ -41,31 +43,10 @@ class OneSample:
         bt = sol.branches
         self.g, self.c, self.e = bt.g[None, :], bt.c[None, :], bt.e[None, :]
         self.is_voltage = bt.is_voltage
-        self._bounds = sol.current_bounds
-
-    def _pos(self, name: str) -> int:
-        return self.netlist.element_position(name)
-
-    def current(self, name: str) -> np.ndarray:
-        return self.i[:, self._pos(name)]
-
-    def voltage(self, name: str, other: str | None = None) -> np.ndarray:
-        if other is not None:
-            return self.potential(name) - self.potential(other)
-        return self.v[:, self._pos(name)]
-
-    def power(self, name: str) -> np.ndarray:
-        k = self._pos(name)
-        return self.v[:, k] * self.i[:, k]
-
-    def potential(self, node: str) -> np.ndarray:
-        return self.potentials[:, self.netlist.node_index[node]]
+        self.bounds = sol.current_bounds[None, :]
 
     def value(self, name: str, key: str, default=None):
         return self.netlist.element(name).values.get(key, default)
-
-    def bound(self, name: str) -> np.ndarray:
-        return np.array([float(self._bounds[self._pos(name)])])
 
     def state(self, name: str) -> str:
         return self.solution.state(name)
