@@ -137,7 +137,13 @@ def sections(net, bt, *, g: np.ndarray | None = None, is_voltage: np.ndarray | N
         keep = np.ones(len(order), dtype=bool)
         keep[1:] = (lo[order][1:] != lo[order][:-1]) | (hi[order][1:] != hi[order][:-1])
         pick = order[keep]
-        best_edge = {(int(lo[k]), int(hi[k])): int(cond[k]) for k in pick}
+        edge_key = lo[pick] * n + hi[pick]  # sorted (lexsort by lo, then hi)
+        edge_el = cond[pick]
+
+        def edge(u: int, w_: int) -> int:
+            key = min(u, w_) * n + max(u, w_)
+            return int(edge_el[int(np.searchsorted(edge_key, key))])
+
         W = coo_matrix((w[pick], (lo[pick], hi[pick])), shape=(n, n)).tocsr()
         starts = sorted({int(bt.a[p]) for p in loads} | {int(bt.b[p]) for p in loads})
         dist, pred = dijkstra(W, directed=False, indices=starts, return_predecessors=True)
@@ -159,7 +165,7 @@ def sections(net, bt, *, g: np.ndarray | None = None, is_voltage: np.ndarray | N
                 prev = int(pred[r, node])
                 if prev < 0:
                     break
-                out.append(best_edge[(min(prev, node), max(prev, node))])
+                out.append(edge(prev, node))
                 node = prev
             return out[::-1]
 

@@ -100,13 +100,20 @@ def rules(net, s) -> list[Series]:
             why = f"node(s) {', '.join(free)} connect to nothing else" if free else "no source can drive current through it"
             detail = f"load {el.name} has no supply: {why}; it draws nothing." + hint(el.nodes)
         out.append(Series("wiring", f"load {el.name} supplied", "", SOURCE, np.nan, np.nan, np.zeros(s.n, dtype=bool), quiet=True, detail=detail))
-    # conductors ending nowhere
-    for el in elements_of(net, *_CONDUCTORS):
+    # conductors ending nowhere (only those touching a node used once are looked at)
+    free_node = uses == 1
+    free_node[net.node_index[net.ground]] = False
+    ends = np.zeros(bt.n_elements, dtype=bool)
+    for kind_name in _CONDUCTORS:
+        if kind_name in bt.groups:
+            pos = bt.groups[kind_name][0]
+            ends[pos] = free_node[bt.a[pos]] | free_node[bt.b[pos]]
+    ends &= bt.a != bt.b
+    for k in np.flatnonzero(ends):
+        el = net.elements[k]
         if el.kind == "switch" and el.values.get("state", "closed") == "open":
             continue
-        free = [nd for nd in el.nodes if uses[net.node_index[nd]] == 1 and nd != net.ground]
-        if not free or el.nodes[0] == el.nodes[1]:
-            continue
+        free = [nd for nd in el.nodes if free_node[net.node_index[nd]]]
         detail = f"{el.kind} {el.name} ends at node(s) {', '.join(free)}, where nothing else connects." + hint(free) if s.single else ""
         out.append(Series("wiring", f"{el.kind} {el.name} connected", "", SOURCE, np.nan, np.nan, np.zeros(s.n, dtype=bool), quiet=True, detail=detail))
     # free terminals of cells and sources: not mistakes, but a likely misspelling is worth a word
