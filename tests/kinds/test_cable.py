@@ -155,7 +155,8 @@ def test_size_in_square_millimetres():
     assert res["resistance_ohm"] == pytest.approx(0.017241 * 1000 / 25, rel=1e-12)
     # and the cable carries the load current of the series circuit (Ohm's law)
     assert res["current_A"] == pytest.approx(12 / (1 + 0.017241 * 1000 / 25), rel=1e-12)
-    assert res["voltage_V"] == pytest.approx(res["current_A"] * res["resistance_ohm"], rel=1e-12)
+    r = 0.017241 * 1000 / 25
+    assert res["voltage_V"] == pytest.approx(12 * r / (1 + r), rel=1e-12)  # the voltage divider
 
 
 def test_gauge_4_0_and_temperature_and_metal_in_text():
