@@ -23,6 +23,7 @@ def compare_taps(path: str, options=None, only: str | None = None) -> list[dict]
     """For each bank (or only ``only``): string currents, imbalance and bank voltage per tap."""
     from ..checks.imbalance import imbalance_values
     from ..language import Options, load, parse
+    from .solution import string_currents
 
     options = options or Options()
     text = None
@@ -53,9 +54,9 @@ def compare_taps(path: str, options=None, only: str | None = None) -> list[dict]
         for tap in TAPS:
             net, sol = layouts[tap], solved[tap]
             b = net.banks[name]
-            cur = np.array([-sol.current(cells[-1]) for cells in b["strings"]])
-            bound = np.array([sol.current_bounds[net.element_position(cells[-1])] for cells in b["strings"]])
-            imb = float(imbalance_values(cur[None, :], bound[None, :])[0])
+            c2, b2 = string_currents(b, lambda n, sol=sol: np.array([sol.current(n)]), lambda n, sol=sol, net=net: sol.current_bounds[None, net.element_position(n)])
+            cur = -c2[0]  # discharging positive
+            imb = float(imbalance_values(c2, b2)[0])
             imb = None if np.isnan(imb) else imb / 100
             rows.append(
                 {

@@ -16,7 +16,7 @@ from ..kinds import KINDS
 from ..netlist import Netlist
 from .branches import BranchTable
 
-__all__ = ["Solution", "QuantityError", "SampleLookups"]
+__all__ = ["Solution", "QuantityError", "SampleLookups", "string_currents"]
 
 
 class SampleLookups:
@@ -54,6 +54,31 @@ class SampleLookups:
         if self.bounds is None:
             return np.zeros(self.i.shape[0])
         return self.bounds[:, self._pos(name)]
+
+    def strings(self, bank: dict) -> tuple[np.ndarray, np.ndarray]:
+        """(samples x strings) current of each string of a bank and its round-off bound
+        (:func:`string_currents`)."""
+        return string_currents(bank, self.current, self.bound)
+
+
+def string_currents(bank: dict, current, bound) -> tuple[np.ndarray, np.ndarray]:
+    """Each string's current (passive sign of its cells: charging positive) and its round-off
+    bound, per sample, from ``current(name)`` and ``bound(name)`` (arrays over samples).
+
+    Every element in series in a string carries the string's current (Kirchhoff's current law);
+    the one read is, per sample, the member with the smallest round-off bound, so a small current
+    through stiff cells is read on the lead or strap that carries it with the least error. A bank
+    without its members recorded is read on its last cells."""
+    chains = bank.get("members") or [[(cells[-1], 1)] for cells in bank["strings"]]
+    cur, bnd = [], []
+    for chain in chains:
+        c = np.column_stack([sign * np.asarray(current(name), dtype=float) for name, sign in chain])
+        b = np.column_stack([np.asarray(bound(name), dtype=float) for name, _ in chain])
+        k = b.argmin(axis=1)
+        rows = np.arange(c.shape[0])
+        cur.append(c[rows, k])
+        bnd.append(b[rows, k])
+    return np.column_stack(cur), np.column_stack(bnd)
 
 
 class QuantityError(KeyError):

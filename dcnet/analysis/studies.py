@@ -43,7 +43,7 @@ from ..units import Quantity
 from .batch import SparsePattern, solve_batch
 from .branches import branch_table
 from .mna import DENSE_LIMIT
-from .solution import SampleLookups
+from .solution import SampleLookups, string_currents
 
 __all__ = ["Study", "ChunkResult", "StudyResult", "CheckSeries", "study_from_file", "sweep", "spread", "axis_values", "sweep_values", "spread_values", "statistics"]
 
@@ -651,8 +651,10 @@ class Samples(SampleLookups):
         g, c, e = (np.broadcast_to(a, (self.n, len(self.branches.g)))[:, where] for a in self.gce)
         sparse = SparsePattern(sbt, g, c) if sbt.solved_voltage.sum() + sbt.n_nodes - 1 > DENSE_LIMIT else None
         sol = solve_batch(sbt, g, c, e, sparse=sparse)
-        last = [sub.element_position(cells[-1]) for cells in bank["strings"]]
-        return np.abs(sol.i[:, last]).max(axis=1), sol.bounds[:, last].max(axis=1)
+        cur, bnd = string_currents(bank, lambda n: sol.i[:, sub.element_position(n)], lambda n: sol.bounds[:, sub.element_position(n)])
+        k = np.abs(cur).argmax(axis=1)
+        rows = np.arange(cur.shape[0])
+        return np.abs(cur[rows, k]), bnd[rows, k]
 
 
 # ------------------------------------------------------------- comparison

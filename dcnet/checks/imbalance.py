@@ -1,9 +1,10 @@
 """Current sharing among parallel strings: imbalance under load, circulating current at rest.
 
 * **Imbalance** is the largest deviation of a string's current from the strings' mean, as a
-  share of the mean. It is judged only while the bank carries a net current well above the
-  solve's round-off (a thousand times the round-off bound of the string currents, summed): at
-  rest the mean is round-off and any percentage of it is noise.
+  share of the mean. It is not judged at rest, where the bank's net current is within the
+  solve's round-off bound of the string currents (summed): the mean is then round-off and any
+  percentage of it is noise. Nor is it judged where round-off could carry it across its limit
+  (the spread of :func:`imbalance_with_spread`): the detail says so.
 * **Circulating current** is the largest string current with the bank alone and its terminals
   open: what the strings exchange at rest. It is judged against ``limit circulating max=...
   among=BANK``, or by default against C/20 of the smallest string capacity (common practice, no
@@ -20,12 +21,10 @@ import numpy as np
 
 from . import Series
 
-__all__ = ["rules", "imbalance_values", "BANK_QUANTITIES", "bank_limits", "AT_REST_FACTOR"]
+__all__ = ["rules", "imbalance_values", "imbalance_with_spread", "BANK_QUANTITIES", "bank_limits"]
 
 DEFAULT_MAX = 0.10
 DEFAULT_SOURCE = "default 10 % (common practice, no source)"
-#: a net current within this many round-off bounds of zero is "at rest"
-AT_REST_FACTOR = 1000.0
 #: default circulating-current limit, as a fraction of a string's capacity per hour (C/20)
 CIRCULATING_C = 1 / 20
 CIRCULATING_SOURCE = "default C/20 of the smallest string capacity (common practice, no source)"
@@ -36,19 +35,45 @@ BANK_QUANTITIES = {"imbalance_pct": "%", "circulating_A": "A"}
 
 def imbalance_values(cur: np.ndarray, bound: np.ndarray | None = None) -> np.ndarray:
     """Per sample (rows of ``cur``): the largest deviation from the mean in % of the mean; NaN
-    where the net current is within :data:`AT_REST_FACTOR` times its round-off ``bound``
-    (summed over the members; without bounds, within 1e-9 of the largest member current)."""
+    at rest, where the net current cannot be told from zero: within the members' round-off
+    ``bound`` summed (without bounds, within 1e-9 of the largest member current)."""
+    return imbalance_with_spread(cur, bound)[0]
+
+
+def imbalance_with_spread(cur: np.ndarray, bound: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`imbalance_values` and how far round-off can move each value (percentage points).
+
+    With every member current within ``b_k`` of its true value, the mean moves by at most
+    ``B/n`` (``B`` the sum of the bounds) and the largest deviation by at most
+    ``max b_k + B/n``: the true imbalance lies between ``(N - max b - B/n) / (|m| + B/n)`` and
+    ``(N + max b + B/n) / (|m| - B/n)``; the spread is the larger distance from the value."""
     cur = np.atleast_2d(cur)
+    n = cur.shape[1]
     mean = cur.mean(axis=1)
     net = np.abs(cur.sum(axis=1))
     if bound is None:
+        b = np.zeros_like(cur)
         rest = net <= 1e-9 * np.abs(cur).max(axis=1, initial=0.0)
     else:
-        rest = net <= AT_REST_FACTOR * np.atleast_2d(bound).sum(axis=1)
+        b = np.broadcast_to(np.atleast_2d(bound), cur.shape)
+        rest = net <= b.sum(axis=1)
     rest |= mean == 0
+    dm = b.sum(axis=1) / max(n, 1)
+    dn = b.max(axis=1, initial=0.0) + dm
+    am = np.abs(mean)
     with np.errstate(divide="ignore", invalid="ignore"):
-        value = np.abs(cur - mean[:, None]).max(axis=1) / np.abs(mean) * 100
-    return np.where(rest, np.nan, value)
+        dev = np.abs(cur - mean[:, None]).max(axis=1)
+        value = dev / am * 100
+        upper = (dev + dn) / (am - dm) * 100
+        lower = np.maximum(dev - dn, 0.0) / (am + dm) * 100
+        spread = np.maximum(upper - value, value - lower)
+    return np.where(rest, np.nan, value), np.where(rest, np.nan, spread)
+
+
+def _undecided(value: np.ndarray, spread: np.ndarray, limit: float) -> np.ndarray:
+    """Samples whose value is within its round-off spread of the limit: the verdict cannot tell."""
+    with np.errstate(invalid="ignore"):
+        return np.abs(value - limit) <= spread
 
 
 def bank_limits(net) -> dict[str, tuple[float, str]]:
@@ -87,21 +112,22 @@ def rules(net, s) -> list[Series]:
     for name, bank in net.banks.items():
         if bank["parallel"] < 2:
             continue
-        last = [cells[-1] for cells in bank["strings"]]
-        cur = np.column_stack([s.current(c) for c in last])
-        bound = np.column_stack([s.bound(c) for c in last])
+        cur, bound = s.strings(bank)
         limit, source = bank_limit[name]
-        value = imbalance_values(cur, bound)
+        value, spread = imbalance_with_spread(cur, bound)
         rest = np.isnan(value)
+        close = _undecided(value, spread, limit * 100)
         circ, circ_bound = s.circulating(bank)
         circ = np.where(circ <= circ_bound, 0.0, circ)
         detail = ""
         if s.single:
-            labels = [f"s{j + 1}" for j in range(len(last))]
+            labels = [f"s{j + 1}" for j in range(cur.shape[1])]
             detail = f"string currents (passive sign, + charging) {_signed(labels, cur[0])} A; net {cur[0].sum():+.4g} A"
             if rest[0]:
                 detail += "; the bank is at rest (net current within round-off): imbalance not judged, see its circulating current"
-        out.append(Series("imbalance", f"bank {name}", "%", source, value, limit * 100, value <= limit * 100, judged=~rest, detail=detail))
+            elif close[0]:
+                detail += f"; within round-off ({spread[0]:.2g} points) of the limit: not judged"
+        out.append(Series("imbalance", f"bank {name}", "%", source, value, limit * 100, value <= limit * 100, judged=~rest & ~close, detail=detail))
         climit, csource = circulating_limit(net, name, bank)
         cdetail = "largest string current with the bank alone, terminals open (at rest)"
         if climit is None:
@@ -116,16 +142,20 @@ def rules(net, s) -> list[Series]:
             continue
         cur = np.column_stack([s.current(n) for n in among])
         bound = np.column_stack([s.bound(n) for n in among])
-        value = imbalance_values(cur, bound)
+        value, spread = imbalance_with_spread(cur, bound)
         rest = np.isnan(value)
         limit = lim.values["max"].value if "max" in lim.values else DEFAULT_MAX
+        close = _undecided(value, spread, limit * 100)
         detail = ""
         if s.single:
             detail = f"currents (passive sign) {_signed(among, cur[0])} A"
             if rest[0]:
                 detail += "; at rest (net current within round-off): imbalance not judged"
+            elif close[0]:
+                detail += f"; within round-off ({spread[0]:.2g} points) of the limit: not judged"
+        judged = ~rest & ~close
         out.append(
-            Series("imbalance", ", ".join(among), "%", f"limit statement at {lim.span}", value, limit * 100, value <= limit * 100, judged=~rest, detail=detail)
+            Series("imbalance", ", ".join(among), "%", f"limit statement at {lim.span}", value, limit * 100, value <= limit * 100, judged=judged, detail=detail)
         )
     return out
 
@@ -134,7 +164,6 @@ def bank_quantity(net, s, name: str, attr: str) -> np.ndarray:
     """``imbalance_pct`` (NaN at rest) or ``circulating_A`` of a bank, one value per sample of ``s``."""
     bank = net.banks[name]
     if attr == "imbalance_pct":
-        last = [cells[-1] for cells in bank["strings"]]
-        return imbalance_values(np.column_stack([s.current(c) for c in last]), np.column_stack([s.bound(c) for c in last]))
+        return imbalance_values(*s.strings(bank))
     circ, bound = s.circulating(bank)
     return np.where(circ <= bound, 0.0, circ)

@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..analysis.solution import SampleLookups
+from ..analysis.solution import SampleLookups, string_currents
 
 __all__ = ["OneSample"]
 
@@ -74,6 +74,12 @@ class OneSample(SampleLookups):
         from ..netlist import bank_alone
 
         sol = bank_alone(self.netlist, bank).solve(checks=False)
-        last = [sol.netlist.element_position(cells[-1]) for cells in bank["strings"]]
-        cur = np.abs(sol.i[last])
-        return np.array([cur.max(initial=0.0)]), np.array([sol.current_bounds[last].max(initial=0.0)])
+        cur, bnd = string_currents(bank, lambda n: sol.i[None, sol.netlist.element_position(n)], lambda n: sol.current_bounds[None, sol.netlist.element_position(n)])
+        return _largest(cur, bnd)
+
+
+def _largest(cur: np.ndarray, bnd: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per sample: the largest |string current| and that string's bound."""
+    k = np.abs(cur).argmax(axis=1)
+    rows = np.arange(cur.shape[0])
+    return np.abs(cur[rows, k]), bnd[rows, k]

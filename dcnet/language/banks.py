@@ -181,11 +181,15 @@ def expand_bank(st, s, file: str) -> None:
     part_deps = st.part_deps.get(part_name, {})
 
     strings: list[list[str]] = []
+    # every element in series in each string, with the sign that turns its passive current into
+    # the cells' (+1: drawn from the cell's + to its - node, charging positive)
+    members: list[list[tuple[str, int]]] = []
     bank_ageing = values.get("ageing", 1.0)
     base_cell = dict(part[1])
     try:
         for j in range(1, P + 1):
             names = []
+            chain: list[tuple[str, int]] = []
             s_over = per_string.get(j, {})
             has_strap = "strap" in values
             bottom = junction("-", j)
@@ -195,6 +199,7 @@ def expand_bank(st, s, file: str) -> None:
             if "lead" in values:
                 node = f"{name}.s{j}.c1-"
                 add("link", f"{name}.s{j}.lead-", node, bottom, finished("link", f"{name}.s{j}.lead-", {"r": values["lead"]}, own_deps({"lead": "r"})))
+                chain.append((f"{name}.s{j}.lead-", 1))
             for i in range(1, S + 1):
                 c_over = per_cell.get((j, i), {})
                 cell_vals = dict(base_cell)
@@ -220,10 +225,12 @@ def expand_bank(st, s, file: str) -> None:
                     deps["r"] = ("mul", deps["r"], ("q", Quantity(factor), 0, 0))
                 add("cell", cname, plus, node, finished("cell", cname, cell_vals, deps))
                 names.append(cname)
+                chain.append((cname, 1))
                 node = plus
                 if not last and has_strap:
                     nxt = f"{name}.s{j}.c{i + 1}-"
                     add("link", f"{name}.s{j}.strap{i}", node, nxt, finished("link", f"{name}.s{j}.strap{i}", {"r": values["strap"]}, own_deps({"strap": "r"})))
+                    chain.append((f"{name}.s{j}.strap{i}", -1))
                     node = nxt
             # positive end: fuse, then lead, to the bus
             if "fuse" in values:
@@ -234,10 +241,13 @@ def expand_bank(st, s, file: str) -> None:
                     fvals["interrupt"] = values["interrupt"]
                 after = top if "lead" not in values else f"{name}.s{j}.fused"
                 add("fuse", f"{name}.s{j}.fuse", node, after, finished("fuse", f"{name}.s{j}.fuse", fvals, own_deps({"fuse": "rating", "fuse_r": "r", "interrupt": "interrupt"})))
+                chain.append((f"{name}.s{j}.fuse", -1))
                 node = after
             if "lead" in values:
                 add("link", f"{name}.s{j}.lead+", node, top, finished("link", f"{name}.s{j}.lead+", {"r": values["lead"]}, own_deps({"lead": "r"})))
+                chain.append((f"{name}.s{j}.lead+", -1))
             strings.append(names)
+            members.append(chain)
         if has_bus:
             for j in range(1, P):
                 for pole in "+-":
@@ -253,6 +263,7 @@ def expand_bank(st, s, file: str) -> None:
         "pos": POS,
         "neg": NEG,
         "strings": strings,
+        "members": members,
         "span": span,
         "prefix": name + ".",
     }

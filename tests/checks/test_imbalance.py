@@ -92,3 +92,50 @@ def test_imbalance_among_elements_at_rest():
     sol = dcnet.parse(text + "load L a n current=10A\n").solve()
     (imb,) = verdicts(sol, "imbalance", "A, B")
     assert imb.value == pytest.approx(0.0, abs=1e-9) and imb.ok is True
+
+
+def test_a_small_real_load_beside_large_circulation_is_judged():
+    # Regression: strings of sub-milliohm cells behind 1 Ohm straps exchange ~18 mA while the
+    # load draws 1.48 mA. The net current is a million times the solve's round-off, so the
+    # imbalance is a real figure and must be judged (it was taken for "at rest" and dropped).
+    # Reference: Millman's theorem for three strings (E_k, R_k) in parallel with a current sink.
+    text = (
+        "cell A1 a1 n emf=1.0V r=0.68mOhm\nresistor SA a1 a2 r=1Ohm\ncell A2 p a2 emf=0.971885V r=0.68mOhm\n"
+        "cell B1 b1 n emf=1.0V r=0.78mOhm\nresistor SB b1 b2 r=1.12Ohm\ncell B2 p b2 emf=1.0V r=0.34mOhm\n"
+        "cell C1 c1 n emf=1.0V r=0.34mOhm\nresistor SC c1 c2 r=1Ohm\ncell C2 p c2 emf=1.0V r=0.34mOhm\n"
+        "load L p n current=1.47842mA\nground n\nlimit imbalance max=1% among=A2,B2,C2\n"
+    )
+    F = Fraction
+    strings = [
+        (F("1.971885"), F("1.00136")),
+        (F(2), F("1.12112")),
+        (F(2), F("1.00068")),
+    ]
+    i_load = F("0.00147842")
+    V = (sum(e / r for e, r in strings) - i_load) / sum(1 / r for _, r in strings)
+    cur = [(e - V) / r for e, r in strings]
+    mean = sum(cur) / 3
+    expected = max(abs(c - mean) for c in cur) / abs(mean) * 100
+    sol = dcnet.parse(text).solve()
+    (imb,) = verdicts(sol, "imbalance", "A2, B2, C2")
+    # the mean (0.49 mA) is a difference of ~18 mA currents: a current's 1e-12 A of round-off is
+    # 2e-9 of the figure, hence 1e-7
+    assert imb.value == pytest.approx(float(expected), rel=1e-7)
+    assert imb.ok is False  # about 3700 % against 1 %
+
+
+def test_within_round_off_of_the_limit_is_not_judged():
+    # imbalance_with_spread: members known to within b_k; a value closer to the limit than its
+    # spread cannot be told either side of it (first-order error propagation, worked by hand:
+    # currents 1 and 3 A, mean 2 A, deviation 1 A, 50 %; bounds 0.01 A each -> mean moves by at
+    # most 0.01, deviation by 0.02: between 0.98/2.01 = 48.76 % and 1.02/1.99 = 51.26 %)
+    import numpy as np
+
+    from dcnet.checks.imbalance import imbalance_with_spread
+
+    value, spread = imbalance_with_spread(np.array([[1.0, 3.0]]), np.array([[0.01, 0.01]]))
+    assert value[0] == pytest.approx(50.0)
+    assert spread[0] == pytest.approx(max(102 / 1.99 - 50, 50 - 98 / 2.01), rel=1e-12)
+    # net within the summed bounds: at rest, NaN
+    value, spread = imbalance_with_spread(np.array([[1.0, -0.99]]), np.array([[0.01, 0.01]]))
+    assert np.isnan(value[0]) and np.isnan(spread[0])
