@@ -12,7 +12,10 @@ This is the one definition of voltage drop that every check, study and report us
   shortest paths). A 12 V load on the mid point of a 24 V string is fed by the lower battery
   only; a load on a battery's terminals behind an isolator diode is fed by that battery, not
   through the diode; a load that can only be reached through a diode or a fuse has them on its
-  path, and they are named.
+  path, and they are named. Where several terminals are equally near (parallel strings
+  through equal fuses), each is kept and, per sample, the pair with the largest voltage gives the
+  section (the larger drop: the conservative reading, and one that does not depend on the order
+  of the file).
 * The **section voltage** of a load is the voltage between its feeding terminals, and its
   **drop** is the section voltage less the load's own voltage: the voltage lost along the
   conductors of both poles (and any diode or fuse on them), as a share of the section voltage.
@@ -45,6 +48,19 @@ class Feed:
     plus_source: str | None  # the source element whose terminal it is
     minus_source: str | None
     path: list[int] = field(default_factory=list)  # element positions on both paths
+    #: every equally near terminal of each pole (node, its source, the conductors to it); the
+    #: first is ``plus``/``minus``
+    plus_ties: list[tuple[int, str, list[int]]] = field(default_factory=list)
+    minus_ties: list[tuple[int, str, list[int]]] = field(default_factory=list)
+
+    def chosen(self, pot: np.ndarray) -> Feed:
+        """The feed of one sample (potentials over nodes): the equally near terminals with the
+        largest section voltage, and their paths."""
+        if len(self.plus_ties) < 2 and len(self.minus_ties) < 2:
+            return self
+        tp = max(self.plus_ties, key=lambda t: pot[t[0]])
+        tm = min(self.minus_ties, key=lambda t: pot[t[0]])
+        return Feed(tp[0], tm[0], tp[1], tm[1], tp[2] + tm[2], [tp], [tm])
 
 
 @dataclass
@@ -60,7 +76,11 @@ class Sections:
         pot = np.atleast_2d(pot)
         if f is None or f.plus is None or f.minus is None:
             return np.full(pot.shape[0], np.nan)
-        return pot[:, f.plus] - pot[:, f.minus]
+        if len(f.plus_ties) < 2 and len(f.minus_ties) < 2:
+            return pot[:, f.plus] - pot[:, f.minus]
+        plus = [t[0] for t in f.plus_ties] or [f.plus]
+        minus = [t[0] for t in f.minus_ties] or [f.minus]
+        return pot[:, plus].max(axis=1) - pot[:, minus].min(axis=1)
 
     def group_voltage(self, pot: np.ndarray, node: int) -> np.ndarray:
         """Section voltage of the conductor group of ``node`` (the largest of its pairs); NaN if none."""
@@ -122,8 +142,9 @@ def sections(net, bt, *, g: np.ndarray | None = None, is_voltage: np.ndarray | N
             a, b = int(bt.a[p]), int(bt.b[p])
             if a == b:
                 continue
-            plus_of.setdefault(a, bt.names[p])
-            minus_of.setdefault(b, bt.names[p])
+            # a terminal shared by several sources is named by the first of their names
+            plus_of[a] = min(plus_of.get(a, bt.names[p]), bt.names[p])
+            minus_of[b] = min(minus_of.get(b, bt.names[p]), bt.names[p])
             src_pairs.append((a, b, int(p)))
     feeds: dict[int, Feed] = {}
     loads = bt.groups.get("load", (np.zeros(0, dtype=np.int64), {}))[0]
@@ -151,12 +172,18 @@ def sections(net, bt, *, g: np.ndarray | None = None, is_voltage: np.ndarray | N
         plus_nodes = np.array(sorted(plus_of), dtype=np.int64)
         minus_nodes = np.array(sorted(minus_of), dtype=np.int64)
 
-        def nearest(start: int, nodes: np.ndarray) -> int | None:
+        names = net.nodes
+
+        def nearest(start: int, nodes: np.ndarray) -> list[int]:
+            """The nearest terminals (all within 1e-9 of the least distance), by node name."""
             if not len(nodes):
-                return None
+                return []
             d = dist[row[start], nodes]
-            k = int(np.argmin(d))
-            return int(nodes[k]) if np.isfinite(d[k]) else None
+            best = float(d.min())
+            if not np.isfinite(best):
+                return []
+            near = nodes[d <= best + 1e-9 * best + 1e-300]
+            return sorted((int(x) for x in near), key=lambda x: names[x])
 
         def path(start: int, end: int) -> list[int]:
             out, node = [], end
@@ -171,12 +198,11 @@ def sections(net, bt, *, g: np.ndarray | None = None, is_voltage: np.ndarray | N
 
         for p in loads:
             a, b = int(bt.a[p]), int(bt.b[p])
-            tp, tm = nearest(a, plus_nodes), nearest(b, minus_nodes)
-            f = Feed(tp, tm, plus_of.get(tp) if tp is not None else None, minus_of.get(tm) if tm is not None else None)
-            if tp is not None:
-                f.path += path(a, tp)
-            if tm is not None:
-                f.path += path(b, tm)
+            pt = [(x, plus_of[x], path(a, x)) for x in nearest(a, plus_nodes)]
+            mt = [(x, minus_of[x], path(b, x)) for x in nearest(b, minus_nodes)]
+            tp, tm = (pt[0] if pt else None), (mt[0] if mt else None)
+            f = Feed(tp[0] if tp else None, tm[0] if tm else None, tp[1] if tp else None, tm[1] if tm else None, plus_ties=pt, minus_ties=mt)
+            f.path = (tp[2] if tp else []) + (tm[2] if tm else [])
             feeds[p] = f
     group_pairs: dict[int, list[tuple[int, int]]] = {}
     for p, f in feeds.items():
@@ -184,8 +210,10 @@ def sections(net, bt, *, g: np.ndarray | None = None, is_voltage: np.ndarray | N
             continue
         for node in (bt.a[p], bt.b[p]):
             lab = int(labels[node])
-            if (f.plus, f.minus) not in group_pairs.setdefault(lab, []):
-                group_pairs[lab].append((f.plus, f.minus))
+            for x, _, _ in f.plus_ties:
+                for y, _, _ in f.minus_ties:
+                    if (x, y) not in group_pairs.setdefault(lab, []):
+                        group_pairs[lab].append((x, y))
     fed = set(group_pairs)  # groups whose section a load's feed gives
     for a, b, _p in src_pairs:
         for node in (a, b):

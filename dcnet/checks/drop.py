@@ -82,6 +82,7 @@ def rules(net, s) -> list[Series]:
             if s.single:
                 f = sec.feeds.get(p)
                 if judged[0]:
+                    f = f.chosen(s.potentials[0])
                     detail = (
                         f"{float(vs[0] - vl[0]):.4g} V of {float(vs[0]):.4g} V from the terminals of {f.plus_source} ({net.nodes[f.plus]}) "
                         f"and {f.minus_source} ({net.nodes[f.minus]}) to the load" + _along(s, f) + (" (critical load)" if critical else "")

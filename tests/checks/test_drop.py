@@ -113,3 +113,30 @@ def test_an_unknown_practice_is_refused_with_a_suggestion():
     with pytest.raises(dcnet.DcnetError) as info:
         dcnet.parse("practice marina\ncell B b gnd emf=12V r=5mOhm\nload L b gnd r=1Ohm\n")
     assert "marine" in (info.value.hint or "")
+
+
+def test_equally_near_strings_give_the_largest_section_and_the_file_order_does_not_matter():
+    # Regression: three strings behind equal 1 Ohm fuses are equally near the load; the feed
+    # took whichever the file listed first, so reordering the file changed the drop (32.4 % or
+    # 35.1 %). Now the equally near terminal with the highest potential gives the section (the
+    # larger drop). Reference: nodal solve written here (Kirchhoff's laws).
+    lines = [
+        "cell S1 s1 n emf=1.0V r=1Ohm", "fuse F1 s1 p rating=10A r=1Ohm",
+        "cell S2 s2 n emf=1.0V r=1Ohm", "fuse F2 s2 p rating=10A r=1Ohm",
+        "cell S3 s3 n emf=1.0625V r=1Ohm", "fuse F3 s3 p rating=10A r=1Ohm",
+        "load L p n r=2Ohm",
+    ]
+    branches = [
+        ("emf", "s1", "n", 1.0, 1.0), ("r", "s1", "p", 1.0),
+        ("emf", "s2", "n", 1.0, 1.0), ("r", "s2", "p", 1.0),
+        ("emf", "s3", "n", 1.0625, 1.0), ("r", "s3", "p", 1.0),
+        ("r", "p", "n", 2.0),
+    ]
+    pot, _, _ = ref_solve(branches, "n")
+    section = max(pot["s1"], pot["s2"], pot["s3"])  # S3's terminal, the highest
+    expected = (section - pot["p"]) / section * 100
+    for order in (lines, lines[::-1], lines[2:] + lines[:2]):
+        sol = dcnet.parse("\n".join(order) + "\nground n\n").solve()
+        v = drop(sol, "L")
+        assert v.value == pytest.approx(expected, rel=1e-12)
+        assert "from the terminals of S3 (s3)" in v.detail and "fuse F3" in v.detail
