@@ -114,7 +114,13 @@ def _dangling(bt: BranchTable) -> list[str]:
     # anything that can carry current counts, current sources included (they are no
     # connection for potentials, but a constant-current load at the end of a feeder is no dead end)
     nonlinear = bt.nonlinear if bt.nonlinear is not None else False
-    m = (bt.connecting | (bt.c != 0) | nonlinear) & (bt.a != bt.b)
+    m = bt.connecting | (bt.c != 0) | nonlinear
+    # an open switch or a blocked one-way element leaves what is behind it idle on purpose: it
+    # counts as a connection here, so a charger behind an open switch is no dead end
+    for kind_name in ("switch", "diode"):
+        if kind_name in bt.groups:
+            m[bt.groups[kind_name][0]] = True
+    m &= bt.a != bt.b
     alive = m.copy()
     n = bt.n_nodes
     while True:

@@ -90,3 +90,16 @@ def test_a_residual_large_beside_the_real_currents_is_not_hidden_by_a_tiny_resis
     i = sol.i.copy()
     i[sol.netlist.element_position("L")] += 0.5
     assert verify(bt, sol.v, i, sol.potentials)["ok"] is False
+
+
+def test_a_charger_behind_an_open_switch_is_no_dead_end():
+    # left idle on purpose (issue: parts idle by an open switch are not mistakes); a cable that
+    # ends at a node with nothing else is still one, switch or not
+    text = (
+        "cell HOUSE h b emf=12.6V r=8mOhm\nsource ALT a b emf=14.2V r=20mOhm\nswitch ENG a h state=open\n"
+        "load FRIDGE h b r=2Ohm\n"
+    )
+    sol = solve(text)
+    assert not any("dead end" in w for w in sol.warnings)
+    sol = solve(text + "switch S2 h q state=open\nresistor R9 q z r=1Ohm\n")
+    assert any("S2, R9 lead nowhere" in w for w in sol.warnings)
