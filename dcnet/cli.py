@@ -22,14 +22,23 @@ from .errors import DcnetError
 __all__ = ["main"]
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse's messages (usage, errors quoting the arguments) with control characters shown escaped."""
+
+    def _print_message(self, message, file=None):
+        from .display import shown
+
+        super()._print_message(shown(message) if message else message, file)
+
+
 def _parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(
+    p = _Parser(
         prog="dcnet",
         description="Solve DC battery networks exactly from dcnet circuit files (.dcn).",
         epilog="Exit codes: 0 ok, 1 a check failed, 2 bad input or unsolvable circuit.",
     )
     p.add_argument("--version", action="version", version=f"dcnet {__version__}")
-    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")  # subcommands' parsers are _Parser too
     for name in COMMANDS:
         import_module(f".commands.{name}", __package__).add_parser(sub)
     return p

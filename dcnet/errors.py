@@ -108,18 +108,26 @@ class DcnetError(Exception):
         return f"{where}{self.message}"
 
     def render(self) -> str:
-        """The full message for people: location, message, source line, caret, hint."""
-        lines = [str(self)]
+        """The full message for people: location, message, source line, caret, hint.
+
+        Control characters and bidi controls anywhere in it (a title, a file name, the echoed
+        line) are shown as visible escapes (``\\x1b``, ``\\u202e``); the caret stands under the
+        span as shown."""
+        from .display import shown
+
+        lines = [shown(str(self))]
         if self.source_line is not None and self.span and self.span.column:
-            text = self.source_line.rstrip("\n").expandtabs(1)
-            lines.append("    " + text)
+            text = self.source_line.rstrip("\r\n").expandtabs(1)
             col = max(self.span.column, 1)
             length = max(1, min(self.span.length, max(1, len(text) - col + 1)))
-            lines.append("    " + " " * (col - 1) + "^" * length)
+            before = len(shown(text[: col - 1])) + max(0, col - 1 - len(text))
+            under = len(shown(text[col - 1 : col - 1 + length])) or length
+            lines.append("    " + shown(text))
+            lines.append("    " + " " * before + "^" * under)
         if self.culprits:
-            lines.append("  involved: " + ", ".join(self.culprits))
+            lines.append(shown("  involved: " + ", ".join(self.culprits)))
         if self.hint:
-            lines.append(f"  hint: {self.hint}")
+            lines.append(shown(f"  hint: {self.hint}"))
         return "\n".join(lines)
 
     def with_span(self, span: Span, source_line: str | None = None) -> DcnetError:

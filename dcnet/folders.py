@@ -30,7 +30,8 @@ def solve_record(item, options, mode: str = "solve", show=(), result: bool = Fal
     path, text = item if isinstance(item, tuple) else (item, None)
     sol, err = solve_one(path, options, text=text)
     if err is not None:
-        return {"file": path, "status": "refused", "error": str(err), "message": err.render(), "warnings": []}
+        read = [path, *getattr(err, "files", ())]  # "read": what an output must never overwrite
+        return {"file": path, "status": "refused", "error": str(err), "message": err.render(), "warnings": [], "read": read}
     failed = sol.failed
     rec: dict[str, Any] = {
         "file": path,
@@ -43,6 +44,7 @@ def solve_record(item, options, mode: str = "solve", show=(), result: bool = Fal
         "checks_run": len(sol.checks),
         "checks_failed": sum(1 for c in sol.checks if not c["ok"]),
         "warnings": list(sol.warnings),
+        "read": list(sol.netlist.files),
     }
     worst = next((c for c in sol.checks if c["sense"] != "info"), None)
     if worst is not None:
@@ -72,7 +74,7 @@ def _read_for_cluster(path: str, options):
     except DcnetError as err:
         if err.span is None:
             err.span = Span(path)
-        return {"file": path, "status": "refused", "error": str(err), "message": err.render(), "warnings": []}
+        return {"file": path, "status": "refused", "error": str(err), "message": err.render(), "warnings": [], "read": [path]}
 
 
 def run_files(files: list[str], options, *, mode: str = "solve", show=(), result: bool = False, jobs=None, cluster=None, progress=True) -> list[dict]:

@@ -3,9 +3,18 @@
 from __future__ import annotations
 
 import json
-import sys
 
-from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options
+from .common import (
+    EXIT_BAD_INPUT,
+    EXIT_OK,
+    Output,
+    add_input_options,
+    add_output_options,
+    check_outputs,
+    options,
+    public,
+    say,
+)
 
 
 def add_parser(sub) -> None:
@@ -15,9 +24,13 @@ def add_parser(sub) -> None:
         "--format", choices=("table", "json", "csv", "markdown", "jsonl"), default="table",
         help="output format (default: table); several files: a summary row per file (jsonl: one JSON line per file)",
     )
-    c.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input)")
+    c.add_argument(
+        "-o", "--output", metavar="OUT",
+        help="write the output to this file (never over an input or a file an input includes; a terminal, /dev/null or a named pipe is written straight to)",
+    )
     c.add_argument("--all", action="store_true", help="list passing checks too (default: all of them for one file)")
     add_input_options(c)
+    add_output_options(c)
     from ..parallel import add_options
 
     add_options(c)  # several files: --jobs, --cluster
@@ -30,6 +43,7 @@ def run(args) -> int:
 
     opts = options(args)
     files = expand_inputs(args.files)
+    check_outputs(args, files)
     out = Output()
     worst = EXIT_OK
     counts = {"passed": 0, "failed": 0, "refused": 0}
@@ -44,25 +58,26 @@ def run(args) -> int:
     for rec in records:
         counts[rec["status"]] += 1
         if rec["status"] == "refused":
-            print(rec["message"], file=sys.stderr)
+            say(rec["message"])
             worst = EXIT_BAD_INPUT
             rec["checks"] = []
             continue
         worst = max(worst, 1 if rec["status"] == "failed" else EXIT_OK)
         for w in rec["warnings"]:
-            print(f"dcnet: warning: {rec['file']}: {w}", file=sys.stderr)
+            say(f"dcnet: warning: {rec['file']}: {w}")
+    read = [*files, *(f for r in records for f in r.get("read", ()))]  # never overwritten by the output
     if args.format == "jsonl":
         for rec in records:
-            out.write(json.dumps({k: v for k, v in rec.items() if k != "message"}) + "\n")
-        print(f"{len(files)} files: {counts['passed']} passed every check, {counts['failed']} failed a check, {counts['refused']} refused", file=sys.stderr)
-        out.finish(args, files)
+            out.write(json.dumps(public(rec)) + "\n")
+        say(f"{len(files)} files: {counts['passed']} passed every check, {counts['failed']} failed a check, {counts['refused']} refused")
+        out.finish(args, read)
         return worst
     if len(files) > 1 and args.format in ("table", "csv") and not args.all:
         _summary(records, counts, args.format, out)
-        out.finish(args, files)
+        out.finish(args, read)
         return worst
     if args.format == "json":
-        records = [{k: v for k, v in r.items() if k != "message"} for r in records]
+        records = [public(r) for r in records]
         out.write(json.dumps(records[0] if len(records) == 1 else {"files": records, "summary": counts}, indent=2) + "\n")
     elif args.format == "csv":
         import csv
@@ -90,7 +105,7 @@ def run(args) -> int:
         if len(files) > 1:
             out.write(f"{len(files)} files: {counts['passed']} passed every check, {counts['failed']} failed a check, {counts['refused']} refused\n")
         out.write(("> " if args.format == "markdown" else "") + rt.wrapped_caution() + "\n")
-    out.finish(args, files)
+    out.finish(args, read)
     return worst
 
 

@@ -5,9 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 
+from ..display import shown, shown_json
 from ..errors import DcnetError
 
-__all__ = ["EXIT_OK", "EXIT_CHECK_FAILED", "EXIT_BAD_INPUT", "options", "add_input_options", "Output", "solve_one", "status"]
+__all__ = [
+    "EXIT_OK", "EXIT_CHECK_FAILED", "EXIT_BAD_INPUT", "options", "add_input_options", "add_output_options", "check_outputs",
+    "write_file", "say", "safe_text", "Output", "solve_one", "status", "public",
+]
 
 EXIT_OK, EXIT_CHECK_FAILED, EXIT_BAD_INPUT = 0, 1, 2
 
@@ -46,8 +50,50 @@ def add_input_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--allow-outside-includes", action="store_true", help="follow includes that leave the circuit file's folder")
 
 
+def add_output_options(p: argparse.ArgumentParser) -> None:
+    """``--allow-dcn-output``, for every command that writes files."""
+    p.add_argument(
+        "--allow-dcn-output", action="store_true",
+        help="allow an output file whose name ends in .dcn (refused otherwise; an input, or a file an input includes, is never written over)",
+    )
+
+
+def output_names(args) -> list[str]:
+    """The files a command was asked to write (``-o``, ``--series``, ``--plot``)."""
+    import os
+
+    names = [os.fspath(v) for k in ("output", "series", "plot") if (v := getattr(args, k, None))]
+    return names[1:] if getattr(args, "output", None) == "-" else names
+
+
+def check_outputs(args, inputs=()) -> None:
+    """Judge the outputs before any work: allowed names, none an input, no two the same file."""
+    from ..files import check_outputs as check
+
+    check(output_names(args), inputs, getattr(args, "allow_dcn_output", False))
+
+
+def write_file(args, path, data: bytes | str, inputs) -> None:
+    """Write one output file through the one writer (:func:`dcnet.files.write_output`)."""
+    from ..files import write_output
+
+    write_output(path, data, protect=list(inputs), allow_circuit=getattr(args, "allow_dcn_output", False))
+
+
+def say(text: str) -> None:
+    """A line for people on standard error, control characters shown escaped."""
+    print(shown(text), file=sys.stderr)
+
+
+def safe_text(text: str, fmt: str | None) -> str:
+    """What a command prints or writes: control characters escaped (exact strings in JSON)."""
+    return shown_json(text) if fmt in ("json", "jsonl") else shown(text)
+
+
 class Output:
-    """Collects what a command prints; sends it to stdout or, atomically, to ``--output``."""
+    """Collects what a command prints; sends it to stdout or to ``--output`` (through the one
+    writer: a temporary name and a rename, never over an input). Control characters are shown
+    escaped in every format; JSON keeps the exact strings."""
 
     def __init__(self):
         import io
@@ -58,12 +104,10 @@ class Output:
         self.buf.write(text)
 
     def finish(self, args, inputs) -> None:
-        text = self.buf.getvalue()
+        text = safe_text(self.buf.getvalue(), getattr(args, "format", None))
         target = getattr(args, "output", None)
-        if target:
-            from ..files import atomic_write_text
-
-            atomic_write_text(target, text, protect=list(inputs))
+        if target and target != "-":  # -o - is standard output
+            write_file(args, target, text, inputs)
         else:
             sys.stdout.write(text)
             sys.stdout.flush()
@@ -89,6 +133,11 @@ def solve_one(path: str, options, text: str | None = None):
         from ..errors import LimitError, Span
 
         return None, LimitError("the file nests too deeply to read", span=Span(path), hint="simplify deeply nested expressions")
+
+
+def public(rec: dict) -> dict:
+    """A folder run's record as it is printed: without the rendered message and the list of files read."""
+    return {k: v for k, v in rec.items() if k not in ("message", "read")}
 
 
 def status(sol) -> int:

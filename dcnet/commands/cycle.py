@@ -6,19 +6,29 @@ import json
 import sys
 
 from ..errors import DimensionError, InputError, Span
-from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options
+from .common import (
+    EXIT_BAD_INPUT,
+    EXIT_OK,
+    Output,
+    add_input_options,
+    add_output_options,
+    check_outputs,
+    options,
+    write_file,
+)
 
 
 def add_parser(sub) -> None:
     c = sub.add_parser("cycle", help="run the charge/discharge phases of a circuit file: energy ledger, states of charge")
     c.add_argument("file", metavar="FILE", help="circuit file (.dcn) with phase statements; - reads standard input")
     c.add_argument("--step", default="60s", metavar="TIME", help="longest time step, e.g. 1s, 30s, 5min (default 60s)")
-    c.add_argument("--series", metavar="CSV", help="write the time series (states of charge, cell currents, node potentials) to this CSV file")
+    c.add_argument("--series", metavar="CSV", help="write the time series (states of charge, cell currents, node potentials) to this CSV file (never over an input)")
     c.add_argument("--plot", metavar="PNG", help="draw state of charge, string currents and bank voltage to this PNG file")
     c.add_argument("--format", choices=("table", "json"), default="table")
     c.add_argument("--refactor", action="store_true", help="factorise the circuit matrix at every step (for comparison; slower)")
     c.add_argument("-o", "--output", metavar="OUT", help="write the printed output to this file")
     add_input_options(c)
+    add_output_options(c)  # -o, --series and --plot: never over an input or a file it includes, never a .dcn name
     c.set_defaults(run=run)
 
 
@@ -42,16 +52,15 @@ def run(args) -> int:
     from ..language import load, parse
 
     opts = options(args)
+    check_outputs(args, [args.file])
     step = _seconds(args.step)
     net = parse(sys.stdin.read(), "<stdin>", opts) if args.file == "-" else load(args.file, opts)
     result = run_cycle(net, step=step, force_refactor=args.refactor, progress=True)
     inputs = net.files
     if args.series:
-        from ..files import atomic_write_text
-
-        atomic_write_text(args.series, series_csv(result), protect=inputs)
+        write_file(args, args.series, series_csv(result), inputs)
     if args.plot:
-        plot(result, args.plot, inputs)
+        write_file(args, args.plot, plot_png(result), inputs)
     out = Output()
     if args.format == "json":
         out.write(json.dumps(result.to_dict(), indent=2) + "\n")
@@ -142,9 +151,9 @@ def series_csv(result) -> str:
     return buf.getvalue()
 
 
-def plot(result, path: str, inputs) -> None:
-    import os
-    import tempfile
+def plot_png(result) -> bytes:
+    """State of charge, string currents and bank voltage over time, as PNG bytes."""
+    import io
 
     try:
         import matplotlib
@@ -185,17 +194,9 @@ def plot(result, path: str, inputs) -> None:
         axes[0].text(ph["start_s"] / 3600.0, 0.98, " " + ph["phase"], fontsize=7, va="top", transform=axes[0].get_xaxis_transform())
     fig.suptitle(net.title or "dcnet cycle", fontsize=10)
     fig.tight_layout()
-    from ..files import atomic_write_text  # noqa: F401 - same rule: temporary name, then rename
-
-    for p in inputs:
-        if os.path.abspath(p) == os.path.abspath(path):
-            raise InputError(f"refusing to write over the input file {p}")
-    fd, tmp = tempfile.mkstemp(prefix=".plot.", suffix=".png", dir=os.path.dirname(os.path.abspath(path)))
-    os.close(fd)
+    buf = io.BytesIO()
     try:
-        fig.savefig(tmp, dpi=110)
-        os.replace(tmp, path)
+        fig.savefig(buf, format="png", dpi=110)
     finally:
         plt.close(fig)
-        if os.path.exists(tmp):
-            os.remove(tmp)
+    return buf.getvalue()

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import json
 
-from .common import EXIT_OK, Output, add_input_options
+from .common import EXIT_OK, Output, add_input_options, add_output_options, check_outputs
 from .formula import add_keep_options, load_netlist, render
 
 
@@ -21,8 +21,9 @@ def add_parser(sub) -> None:
     e.add_argument(
         "--format", choices=("text", "latex", "python", "json"), default="text", help="output format (default: text)"
     )
-    e.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input)")
+    e.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input or a file an input includes)")
     add_input_options(e)
+    add_output_options(e)
     e.set_defaults(run=run)
 
 
@@ -30,6 +31,7 @@ def run(args) -> int:
     from ..analysis.equivalent import equivalent
     from ..errors import DcnetError, Span
 
+    check_outputs(args, [args.file])
     net = load_netlist(args)
     x, y = args.between
     try:

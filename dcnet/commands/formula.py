@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import json
 
-from .common import EXIT_OK, Output
+from .common import EXIT_OK, Output, add_output_options, check_outputs
 
 CHECK_NOTE = "every formula was checked against the numeric solve at the file's values before it was shown"
 
@@ -27,10 +27,11 @@ def add_parser(sub) -> None:
     f.add_argument(
         "--format", choices=("text", "latex", "python", "json"), default="text", help="output format (default: text)"
     )
-    f.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input)")
+    f.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input or a file an input includes)")
     from .common import add_input_options
 
     add_input_options(f)
+    add_output_options(f)
     f.set_defaults(run=run)
 
 
@@ -84,6 +85,7 @@ def run(args) -> int:
     from ..analysis.symbolic import formulas
     from ..errors import Span
 
+    check_outputs(args, [args.file])
     net = load_netlist(args)
     try:
         found = formulas(net, args.quantities, args.keep, keep_all=args.keep_all, time_budget=args.time_budget)

@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import json
-import sys
 
 from ..errors import DcnetError
-from .common import EXIT_BAD_INPUT, EXIT_OK, add_input_options, options
+from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options, say
 
 
 def add_parser(sub) -> None:
@@ -27,22 +26,24 @@ def run(args) -> int:
     try:
         tables = compare_taps(path, opts, only=args.bank)
     except DcnetError as err:
-        print(err.render(), file=sys.stderr)
+        say(err.render())
         return EXIT_BAD_INPUT
+    out = Output()  # printed with control characters shown escaped, as every command's output
     if args.format == "json":
-        print(json.dumps(tables, indent=2))
+        out.write(json.dumps(tables, indent=2) + "\n")
+        out.finish(args, [path])
         return EXIT_OK
     for t in tables:
-        print(f"bank {t['bank']}: {t['series']}s{t['parallel']}p, string currents by tap position (A, discharge positive)")
+        out.write(f"bank {t['bank']}: {t['series']}s{t['parallel']}p, string currents by tap position (A, discharge positive)\n")
         header = ["string"] + [lay["tap"] for lay in t["layouts"]]
         rows = [header]
         for j in range(t["parallel"]):
             rows.append([f"s{j + 1}"] + [f"{lay['string_currents_A'][j]:.4g}" for lay in t["layouts"]])
         rows.append(["imbalance"] + [("-" if lay["imbalance_pct"] is None else f"{lay['imbalance_pct']:.2f} %") for lay in t["layouts"]])
         rows.append(["bank voltage"] + [f"{lay['bank_voltage_V']:.4g} V" for lay in t["layouts"]])
-        print("\n".join(rt.columns(rows, right=set(range(1, len(header))))))
-        print()
-    print(rt.wrapped_caution())
+        out.write("\n".join(rt.columns(rows, right=set(range(1, len(header))))) + "\n\n")
+    out.write(rt.wrapped_caution() + "\n")
+    out.finish(args, [path])
     return EXIT_OK
 
 

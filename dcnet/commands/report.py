@@ -4,7 +4,17 @@ from __future__ import annotations
 
 import sys
 
-from .common import EXIT_BAD_INPUT, Output, add_input_options, options, status
+from .common import (
+    EXIT_BAD_INPUT,
+    Output,
+    add_input_options,
+    add_output_options,
+    check_outputs,
+    options,
+    say,
+    status,
+    write_file,
+)
 
 FORMATS = ("html", "svg", "png")
 
@@ -22,7 +32,7 @@ def add_parser(sub) -> None:
         "-o",
         "--output",
         metavar="OUT",
-        help="write to this file (never over an input); the format follows its suffix (.html, .svg, .png)",
+        help="write to this file (never over an input or a file an input includes); the format follows its suffix (.html, .svg, .png)",
     )
     c.add_argument(
         "--format", choices=FORMATS, help="html (the report, default), svg or png (the network picture alone)"
@@ -31,6 +41,7 @@ def add_parser(sub) -> None:
     c.add_argument("--cycle", action="store_true", help="also run the file's charge/discharge phases and add the cycle section")
     c.add_argument("--step", default="60s", metavar="TIME", help="longest time step of the cycle (default 60s)")
     add_input_options(c)
+    add_output_options(c)
     c.set_defaults(run=run)
 
 
@@ -52,6 +63,7 @@ def run(args) -> int:
     if fmt == "png" and not args.output:
         raise InputError("PNG output needs a file name", hint="add -o picture.png")
     opts = options(args)
+    check_outputs(args, [args.file])
     if args.file == "-":
         text = sys.stdin.read()
         net = parse(text, "<stdin>", opts)
@@ -61,7 +73,7 @@ def run(args) -> int:
         sources = None
     sol = net.solve()
     for w in sol.warnings:
-        print(f"dcnet: warning: {args.file}: {w}", file=sys.stderr)
+        say(f"dcnet: warning: {args.file}: {w}")
     inputs = [args.file] + [f for f in net.files if f != args.file]
     if fmt == "html":
         from ..report.html import render
@@ -81,18 +93,14 @@ def run(args) -> int:
         try:
             sc = picture.scene(sol, args.title)
         except picture.PictureTooLarge as exc:
-            print(f"dcnet: {exc}", file=sys.stderr)
+            say(f"dcnet: {exc}")
             return EXIT_BAD_INPUT
         if fmt == "svg":
             out = Output()
             out.write(picture.svg_of_scene(sc))
             out.finish(args, inputs)
         else:
-            from ..files import atomic_write_bytes
-
-            atomic_write_bytes(args.output, picture.png_bytes(sc), protect=inputs)
-    if args.output:
-        print(
-            f"dcnet: wrote {args.output}" + (" (a check failed: see the report)" if sol.failed else ""), file=sys.stderr
-        )
+            write_file(args, args.output, picture.png_bytes(sc), inputs)
+    if args.output and args.output != "-":
+        say(f"dcnet: wrote {args.output}" + (" (a check failed: see the report)" if sol.failed else ""))
     return status(sol)

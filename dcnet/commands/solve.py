@@ -3,10 +3,21 @@
 from __future__ import annotations
 
 import json
-import sys
 from pathlib import Path
 
-from .common import EXIT_BAD_INPUT, EXIT_OK, Output, add_input_options, options, solve_one, status
+from .common import (
+    EXIT_BAD_INPUT,
+    EXIT_OK,
+    Output,
+    add_input_options,
+    add_output_options,
+    check_outputs,
+    options,
+    public,
+    say,
+    solve_one,
+    status,
+)
 
 
 def add_parser(sub) -> None:
@@ -16,7 +27,11 @@ def add_parser(sub) -> None:
         "--format", choices=("table", "json", "csv", "markdown", "jsonl"), default="table",
         help="output format (default: table); jsonl: one JSON line per file (several files)",
     )
-    s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input; written to a temporary name, then renamed)")
+    s.add_argument(
+        "-o", "--output", metavar="OUT",
+        help="write the output to this file (never over an input or a file an input includes; written to a temporary name, then "
+        "renamed; a terminal, /dev/null or a named pipe is written straight to)",
+    )
     s.add_argument("-v", "--verbose", action="store_true", help="also print the nonlinear solver's iterations (to standard error)")
     s.add_argument(
         "--show",
@@ -27,6 +42,7 @@ def add_parser(sub) -> None:
         "or BANK.imbalance_pct and BANK.circulating_A",
     )
     add_input_options(s)
+    add_output_options(s)
     from ..parallel import add_options
 
     add_options(s)  # several files: --jobs, --cluster
@@ -39,11 +55,12 @@ def run(args) -> int:
 
     opts = options(args)
     files = expand_inputs(args.files)
+    check_outputs(args, files)
     out = Output()
     if len(files) == 1 and not Path(args.files[0]).is_dir() and args.format != "jsonl":
         sol, err = solve_one(files[0], opts)
         if err is not None:
-            print(err.render(), file=sys.stderr)
+            say(err.render())
             return EXIT_BAD_INPUT
         if args.show:
             code = _show(sol, args.show, args.format, files[0], out)
@@ -59,27 +76,26 @@ def run(args) -> int:
                 out.write(rt.table(result, files[0]) + "\n")
             code = status(sol)
         for w in sol.warnings:
-            print(f"dcnet: warning: {files[0]}: {w}", file=sys.stderr)
+            say(f"dcnet: warning: {files[0]}: {w}")
         if args.verbose:
             _print_history(sol, files[0])
         out.finish(args, sol.netlist.files)
         return code
-    code = _solve_many(files, opts, args, out)
-    out.finish(args, files)
+    code, read = _solve_many(files, opts, args, out)
+    out.finish(args, [*files, *read])
     return code
 
 
 def _print_history(sol, file: str) -> None:
     history = getattr(sol, "newton_history", None)
     if not history:
-        print(f"dcnet: {file}: linear circuit, solved directly (no iterations)", file=sys.stderr)
+        say(f"dcnet: {file}: linear circuit, solved directly (no iterations)")
         return
-    print(f"dcnet: {file}: nonlinear solve, {len(history)} iterations", file=sys.stderr)
+    say(f"dcnet: {file}: nonlinear solve, {len(history)} iterations")
     for h in history:
-        print(
+        say(
             f"  {h['phase']:<16} scale {h.get('scale', 1.0):4.2f}  #{h['iteration']:<3} step {h.get('step_V', float('nan')):10.3e} V  "
-            f"residual {h['residual_A']:10.3e} A  damping {h.get('alpha', 1.0):6.4f}  modes changed {h['modes_changed']}",
-            file=sys.stderr,
+            f"residual {h['residual_A']:10.3e} A  damping {h.get('alpha', 1.0):6.4f}  modes changed {h['modes_changed']}"
         )
 
 
@@ -92,7 +108,7 @@ def _show(sol, specs, fmt, file, out) -> int:
         try:
             values.append(sol.quantity(spec))
         except QuantityError as exc:
-            print(f"dcnet: {file}: {exc}", file=sys.stderr)
+            say(f"dcnet: {file}: {exc}")
             return EXIT_BAD_INPUT
     if fmt == "json":
         out.write(json.dumps({"file": file, "values": {label: value for label, value, _ in values}}, indent=2) + "\n")
@@ -106,7 +122,8 @@ def _show(sol, specs, fmt, file, out) -> int:
 
 
 def _solve_many(files, opts, args, out) -> int:
-    """Several files: solved in parallel (local worker processes or a Dask cluster), one record each."""
+    """Several files: solved in parallel (local worker processes or a Dask cluster), one record each.
+    Returns the exit code and every file the inputs read (which the output must not overwrite)."""
     from ..folders import run_files
     from ..report import text as rt
 
@@ -119,19 +136,19 @@ def _solve_many(files, opts, args, out) -> int:
         counts[rec["status"]] += 1
         if rec["status"] == "refused":
             worst = EXIT_BAD_INPUT
-            print(rec["message"], file=sys.stderr)
+            say(rec["message"])
         else:
             worst = max(worst, EXIT_OK if rec["status"] == "ok" else 1)
             for w in rec["warnings"]:
-                print(f"dcnet: warning: {rec['file']}: {w}", file=sys.stderr)
+                say(f"dcnet: warning: {rec['file']}: {w}")
     if args.format == "jsonl":
         for rec in records:
-            out.write(json.dumps({k: v for k, v in rec.items() if k != "message"}) + "\n")
+            out.write(json.dumps(public(rec)) + "\n")
     summary = f"{len(files)} files: {counts['ok']} ok, {counts['check failed']} failed a check, {counts['refused']} refused"
     if args.format == "jsonl":
         pass
     elif args.format == "json":
-        out.write(json.dumps({"files": [{k: v for k, v in r.items() if k != "message"} for r in records], "summary": counts}, indent=2) + "\n")
+        out.write(json.dumps({"files": [public(r) for r in records], "summary": counts}, indent=2) + "\n")
     elif args.format == "csv":
         import csv
         import io
@@ -161,8 +178,8 @@ def _solve_many(files, opts, args, out) -> int:
         out.write(summary + "\n")
         if args.format == "table":
             out.write("\n" + rt.wrapped_caution() + "\n")
-    if args.format in ("json", "csv", "jsonl") or args.output:
-        print(summary, file=sys.stderr)
-    return worst
+    if args.format in ("json", "csv", "jsonl") or args.output not in (None, "-"):
+        say(summary)
+    return worst, [f for r in records for f in r.get("read", ())]
 
 

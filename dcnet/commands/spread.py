@@ -3,10 +3,20 @@
 from __future__ import annotations
 
 import json
-import sys
 
 from ..errors import InputError
-from .common import EXIT_CHECK_FAILED, EXIT_OK, Output, add_fault_option, add_input_options, options
+from .common import (
+    EXIT_CHECK_FAILED,
+    EXIT_OK,
+    Output,
+    add_fault_option,
+    add_input_options,
+    add_output_options,
+    check_outputs,
+    options,
+    say,
+    write_file,
+)
 
 
 def add_parser(sub) -> None:
@@ -33,8 +43,9 @@ def add_parser(sub) -> None:
     add_fault_option(s)
     s.add_argument("--format", choices=("table", "csv", "json"), default="table", help="output format (default: table)")
     s.add_argument("--plot", metavar="PNG", help="also draw a histogram of each quantity (needs matplotlib)")
-    s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input)")
+    s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input or a file an input includes)")
     add_input_options(s)
+    add_output_options(s)
     from ..parallel import add_options
 
     add_options(s)
@@ -63,6 +74,7 @@ def run(args) -> int:
         raise InputError(f"--samples {args.samples}: give between 1 and 100,000,000 samples")
     pct = _percentiles(args.percentiles)
     opts = options(args)
+    check_outputs(args, [args.file])
     net = load(args.file, opts)
     toleranced = [n for n, key in ((k[1], k) for k in net.exprs if k[0] == "let") if "." not in n and net.values[n][2] is not None]
     names = toleranced
@@ -86,7 +98,7 @@ def run(args) -> int:
     except QuantityError as exc:
         raise InputError(f"--show: {exc}") from None
     for w in study.nominal_solution.warnings:
-        print(f"dcnet: warning: {args.file}: {w}", file=sys.stderr)
+        say(f"dcnet: warning: {args.file}: {w}")
     bar = Progress(args.samples, "samples")
     runner = make_runner(args.jobs, args.cluster, -(-args.samples // study.chunk_size()))
     try:
@@ -123,6 +135,6 @@ def run(args) -> int:
     if args.plot:
         if not result.labels:
             raise InputError("--plot draws the quantities of --show: name at least one")
-        rs.plot_spread(args.plot, args.file, result, stats, args.samples, inputs + ([args.output] if args.output else []))
+        write_file(args, args.plot, rs.plot_spread(args.file, result, stats, args.samples), inputs)
     out.finish(args, inputs)
     return EXIT_CHECK_FAILED if result.failed.any() else EXIT_OK

@@ -6,7 +6,18 @@ import json
 import re
 
 from ..errors import InputError
-from .common import EXIT_CHECK_FAILED, EXIT_OK, Output, add_fault_option, add_input_options, options
+from .common import (
+    EXIT_CHECK_FAILED,
+    EXIT_OK,
+    Output,
+    add_fault_option,
+    add_input_options,
+    add_output_options,
+    check_outputs,
+    options,
+    say,
+    write_file,
+)
 
 _VARY = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*=(.+)$")
 DEFAULT_COUNT = 11
@@ -28,8 +39,9 @@ def add_parser(sub) -> None:
     add_fault_option(s)
     s.add_argument("--format", choices=("table", "csv", "json"), default="table", help="output format (default: table)")
     s.add_argument("--plot", metavar="PNG", help="also draw the quantities against the first varied value (needs matplotlib)")
-    s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input)")
+    s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input or a file an input includes)")
     add_input_options(s)
+    add_output_options(s)
     from ..parallel import add_options
 
     add_options(s)
@@ -97,6 +109,7 @@ def run(args) -> int:
     from ..report.studies import show_value
 
     opts = options(args)
+    check_outputs(args, [args.file])
     net = load(args.file, opts)
     names = []
     specs = []
@@ -115,10 +128,8 @@ def run(args) -> int:
         study.prepare(far)
     except QuantityError as exc:
         raise InputError(f"--show: {exc}") from None
-    import sys
-
     for w in study.nominal_solution.warnings:
-        print(f"dcnet: warning: {args.file}: {w}", file=sys.stderr)
+        say(f"dcnet: warning: {args.file}: {w}")
     n = len(next(iter(values.values())))
     bar = Progress(n, "points")
     runner = make_runner(args.jobs, args.cluster, -(-n // study.chunk_size()))
@@ -139,6 +150,7 @@ def run(args) -> int:
         out.write(rs.sweep_table(args.file, study, axes, values, result, describe + f"; {study.reason}"))
     inputs = list(net.files)
     if args.plot:
-        rs.plot_sweep(args.plot, args.file, study, axes, values, result, {name: log for name, _, _, _, log in specs}, inputs + ([args.output] if args.output else []))
+        logs = {name: log for name, _, _, _, log in specs}
+        write_file(args, args.plot, rs.plot_sweep(args.file, study, axes, values, result, logs), inputs)
     out.finish(args, inputs)
     return EXIT_CHECK_FAILED if result.failed.any() else EXIT_OK

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from ..display import source_lines
 from ..errors import (
     DcnetError,
     DimensionError,
@@ -105,6 +106,8 @@ class _State:
     env: dict[str, Quantity] = field(default_factory=dict)
     parts: dict[str, tuple[str, dict[str, Any], Span]] = field(default_factory=dict)
     lines: dict[str, list[str]] = field(default_factory=dict)
+    #: files outside the circuit's folder, included with permission: their lines are never echoed
+    quiet: set[str] = field(default_factory=set)
     ground_span: Span | None = None
     const_cache: dict[str, Quantity] = field(default_factory=dict)
     include_stack: list[Path] = field(default_factory=list)
@@ -138,9 +141,10 @@ def parse(text: str, file: str = "<text>", options: Options | None = None, *, ba
     root = Path(base_dir).resolve() if base_dir is not None else Path.cwd().resolve()
     st = _State(Netlist(), options, root)
     st.net.files.append(file)
-    with _gc_paused():
-        _run(st, text, file, root)
-    _finish(st)
+    with _read_files_on_error(st):
+        with _gc_paused():
+            _run(st, text, file, root)
+        _finish(st)
     return st.net
 
 
@@ -158,10 +162,24 @@ def load(path: str | os.PathLike, options: Options | None = None, *, text: str |
     st = _State(Netlist(), options, root)
     st.net.files.append(str(path))
     st.include_stack.append(p.resolve())
-    with _gc_paused():
-        _run(st, text, str(path), root)
-    _finish(st)
+    with _read_files_on_error(st):
+        with _gc_paused():
+            _run(st, text, str(path), root)
+        _finish(st)
     return st.net
+
+
+@contextmanager
+def _read_files_on_error(st: _State):
+    """An error leaving elaboration carries ``files``: every file read or tried so far (an
+    output must never overwrite any of them), and no line of a quiet file."""
+    try:
+        yield
+    except DcnetError as err:
+        if err.file in st.quiet:
+            err.source_line = None
+        err.files = list(st.net.files)
+        raise
 
 
 def _read(p: Path, options: Options, span: Span | None) -> str:
@@ -200,10 +218,12 @@ def _read(p: Path, options: Options, span: Span | None) -> str:
 def _run(st: _State, text: str, file: str, folder: Path, echo: bool = True) -> None:
     """Elaborate one file's statements. ``echo=False`` (a file outside the circuit's folder,
     included with permission) keeps its lines out of every message."""
+    if not echo:
+        st.quiet.add(file)
     try:
         _run_statements(st, text, file, folder)
     except DcnetError as err:
-        if not echo and err.file == file:
+        if err.file in st.quiet:
             err.source_line = None
         raise
 
@@ -212,7 +232,7 @@ _HANDLERS: dict[str, Any] = {}
 
 
 def _run_statements(st: _State, text: str, file: str, folder: Path) -> None:
-    st.lines[file] = text.splitlines()
+    st.lines[file] = source_lines(text)  # numbered as the grammar counts lines
     statements = parse_statements(text, file)
     collecting: _Block | None = None
     depth = 0
@@ -262,6 +282,8 @@ def _locate(st: _State, err: DcnetError, s: Statement, file: str) -> None:
 
 
 def _src(st: _State, file: str, line: int) -> str | None:
+    if file in st.quiet:
+        return None
     lines = st.lines.get(file)
     if lines and 0 < line <= len(lines):
         return lines[line - 1]
@@ -705,9 +727,9 @@ def _include(st: _State, s: Statement, file: str, folder: Path) -> None:
     if target in st.include_stack:
         chain = " -> ".join(p.name for p in st.include_stack[st.include_stack.index(target):] + [target])
         raise IncludeError(f"include cycle: {chain}", span=span, hint="remove one of the includes")
+    st.net.files.append(str(target))  # before reading: an output never overwrites it, even if it is refused
     text = _read(target, st.options, span)
     st.include_stack.append(target)
-    st.net.files.append(str(target))
     try:
         _run(st, text, str(target), target.parent, echo=inside)
     finally:

@@ -390,7 +390,9 @@ def _diagnose_line(src: str, column: int):
 
 
 def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int = 0, col_offset: int = 0) -> DcnetError:
-    lines = text.splitlines()
+    from ..display import source_lines
+
+    lines = source_lines(text)  # numbered as the grammar counts lines
     line = getattr(exc, "line", 0) or 0
     column = getattr(exc, "column", 0) or 0
     at_end = isinstance(exc, UnexpectedEOF) or (isinstance(exc, UnexpectedToken) and exc.token.type == "$END")

@@ -22,10 +22,17 @@ Sections without a result are left out. The page prints to A4 from a browser (pr
 from __future__ import annotations
 
 import math
-from html import escape
+from html import escape as _html_escape
 
 from .. import __version__
+from ..display import shown, source_lines
 from .text import CAUTION, limit_text, si
+
+
+def escape(text: str, quote: bool = True) -> str:
+    """HTML/XML text: markup escaped, control characters and bidi controls shown as visible escapes
+    (they are not allowed in XML and would make the page read differently from what it holds)."""
+    return _html_escape(shown(text), quote)
 
 __all__ = ["render", "section_data", "power_ledger"]
 
@@ -426,7 +433,7 @@ def _inputs(sources: list[tuple[str, str]]) -> str:
     out = ['<section class="inputs"><h2>Inputs</h2>']
     for name, text in sources:
         out.append(f"<h3>{_e(name)}</h3>")
-        lines = text.splitlines() or [""]
+        lines = source_lines(text) or [""]  # numbered as in error messages
         out.append(
             '<table class="source">'
             + "".join(f'<tr><td class="ln">{k}</td><td>{_e(line)}</td></tr>' for k, line in enumerate(lines, 1))

@@ -28,11 +28,18 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from html import escape
+from html import escape as _html_escape
 
 import numpy as np
 
+from ..display import shown
 from .text import si
+
+
+def escape(text: str, quote: bool = True) -> str:
+    """HTML/XML text: markup escaped, control characters and bidi controls shown as visible escapes
+    (they are not allowed in XML and would make the page read differently from what it holds)."""
+    return _html_escape(shown(text), quote)
 
 __all__ = ["STATUS", "MAX_NODES", "element_status", "layout", "scene", "svg", "write_png", "PictureTooLarge"]
 

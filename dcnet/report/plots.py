@@ -8,7 +8,16 @@ nothing to view and nothing heavy to make. A plot is described by a plain dict (
 from __future__ import annotations
 
 import math
-from html import escape
+from html import escape as _html_escape
+
+from ..display import shown
+
+
+def escape(text: str, quote: bool = True) -> str:
+    """HTML/XML text: markup escaped, control characters and bidi controls shown as visible escapes
+    (they are not allowed in XML and would make the page read differently from what it holds)."""
+    return _html_escape(shown(text), quote)
+
 
 __all__ = ["plot_svg", "nice_ticks", "PALETTE"]
 

@@ -243,38 +243,15 @@ def _pyplot():
     return plt
 
 
-def _save(fig, path: str, protect) -> None:
-    """Save a figure as PNG through a temporary file and a rename, never over an input."""
-    import tempfile
-    from pathlib import Path
-
-    from ..errors import InputError
-
-    target = Path(path).resolve()
-    for p in protect:
-        if p != "-" and Path(p).resolve() == target:
-            raise InputError(f"refusing to write over the input file {p}", hint="choose another plot name")
-    if not target.parent.is_dir():
-        raise InputError(f"the folder {target.parent} does not exist")
+def _png(fig) -> bytes:
+    """The figure as PNG bytes (the command writes them through dcnet's one output writer)."""
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=110)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-    try:
-        umask = os.umask(0)
-        os.umask(umask)
-        os.fchmod(fd, 0o666 & ~umask)  # an ordinary file for the user, not mkstemp's private mode
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(buf.getvalue())
-        os.replace(tmp, target)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    return buf.getvalue()
 
 
-def plot_sweep(path: str, file: str, study, axes, values, result, logs: dict[str, bool], protect) -> None:
+def plot_sweep(file: str, study, axes, values, result, logs: dict[str, bool]) -> bytes:
+    """The quantities against the first varied value, one line per combination of the others: PNG bytes."""
     plt = _pyplot()
     nq = max(1, len(result.labels))
     fig, ax = plt.subplots(nq, 1, figsize=(8, 2.6 * nq + 0.8), sharex=True, squeeze=False)
@@ -299,11 +276,14 @@ def plot_sweep(path: str, file: str, study, axes, values, result, logs: dict[str
     ax[-1][0].set_xlabel(f"{first} ({unit})" if unit else first)
     fig.suptitle(f"Sweep of {os.path.basename(file)}", fontsize=10)
     fig.tight_layout()
-    _save(fig, path, protect)
-    plt.close(fig)
+    try:
+        return _png(fig)
+    finally:
+        plt.close(fig)
 
 
-def plot_spread(path: str, file: str, result, stats, samples: int, protect) -> None:
+def plot_spread(file: str, result, stats, samples: int) -> bytes:
+    """A histogram of each quantity with the nominal value and p5/p95 marked: PNG bytes."""
     plt = _pyplot()
     nq = max(1, len(result.labels))
     fig, ax = plt.subplots(nq, 1, figsize=(8, 2.6 * nq + 0.8), squeeze=False)
@@ -321,5 +301,7 @@ def plot_spread(path: str, file: str, result, stats, samples: int, protect) -> N
         a.legend(fontsize=7)
     fig.suptitle(f"Spread of {os.path.basename(file)}: {samples:,} samples", fontsize=10)
     fig.tight_layout()
-    _save(fig, path, protect)
-    plt.close(fig)
+    try:
+        return _png(fig)
+    finally:
+        plt.close(fig)
