@@ -179,7 +179,7 @@ def _stacked_solve(A: np.ndarray, z: np.ndarray, N: int, sums: np.ndarray):
     B = np.empty((S, m, 4))
     B[:, :, 0] = z
     B[:, :, 1:3] = sums
-    B[:, :, 3] = 1.0
+    B[:, :, 3] = np.abs(z)
     try:
         X = np.linalg.solve(A, B)
         return X[:, :, 0].copy(), X[:, :, 1:]
@@ -250,7 +250,7 @@ def sparse_samples(bt: BranchTable, g, c, e, pattern: SparsePattern):
             raise NumericalError(f"the circuit matrix is singular (sample {k + 1}: {exc})") from None
         from .mna import bound_rhs
 
-        X = pattern.Pc @ lu.solve(np.column_stack([z, bound_rhs(A, N)]))
+        X = pattern.Pc @ lu.solve(np.column_stack([z, bound_rhs(A, N, z)]))
         x[k] = X[:, 0]
         W[k] = X[:, 1:]
         mats.append((A, lu))
@@ -352,7 +352,7 @@ def bounds_batch(bt: BranchTable, layout, W, x, z, pot, g, c, floor) -> np.ndarr
     xv = np.abs(x[:, :N]).max(axis=1, initial=0.0)
     xi = np.abs(x[:, N:]).max(axis=1, initial=0.0)
     zn = np.abs(z).max(axis=1, initial=0.0)
-    dx = BOUND_EPS * (np.abs(W[:, :, 0]) * xv[:, None] + np.abs(W[:, :, 1]) * xi[:, None] + np.abs(W[:, :, 2]) * zn[:, None])
+    dx = BOUND_EPS * (np.abs(W[:, :, 0]) * xv[:, None] + np.abs(W[:, :, 1]) * xi[:, None] + np.abs(W[:, :, 2]))
     dv = np.zeros((S, bt.n_nodes))
     mask = row >= 0
     dv[:, mask] = dx[:, row[mask]]

@@ -150,9 +150,10 @@ class Factor:
         return self._lu.solve(z)
 
 
-def bound_rhs(A, N: int) -> np.ndarray:
+def bound_rhs(A, N: int, z) -> np.ndarray:
     """Right-hand sides for the round-off bound of a solve (dcnet.analysis.solve.current_bounds):
-    the row sums of ``|A|`` over the potential unknowns, over the branch-current unknowns, and ones.
+    the row sums of ``|A|`` over the potential unknowns, over the branch-current unknowns, and
+    ``|z|`` (componentwise: a large source term at one node is not spread over every other).
     Known before the solve, they are solved with the system's own right-hand side in one call."""
     absA = np.abs(A) if isinstance(A, np.ndarray) else abs(A)
     m = A.shape[0]
@@ -163,7 +164,7 @@ def bound_rhs(A, N: int) -> np.ndarray:
     else:
         out[:, 0] = np.asarray(absA[:, :N].sum(axis=1)).ravel()
         out[:, 1] = np.asarray(absA[:, N:].sum(axis=1)).ravel()
-    out[:, 2] = 1.0
+    out[:, 2] = np.abs(z)
     return out
 
 
@@ -177,7 +178,7 @@ def solve_system(system: System) -> tuple[np.ndarray, Factor]:
     if system.size == 0:
         f.bound_columns = np.zeros((0, 3))
         return np.zeros(0), f
-    B = np.column_stack([system.z, bound_rhs(system.A, system.n_node_rows)])
+    B = np.column_stack([system.z, bound_rhs(system.A, system.n_node_rows, system.z)])
     X = np.asarray(f.solve(B)).reshape(B.shape)
     f.bound_columns = X[:, 1:]
     return X[:, 0].copy(), f

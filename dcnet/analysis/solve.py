@@ -16,7 +16,7 @@ import dataclasses
 
 import numpy as np
 
-from ..errors import NumericalError, TopologyError
+from ..errors import NoOperatingPointError, NumericalError, TopologyError
 from ..netlist import Netlist
 from .branches import BranchTable, branch_table
 from .mna import System, solve_system
@@ -69,43 +69,127 @@ def currents(bt: BranchTable, system: System, x: np.ndarray, g=None, c=None):
     return pot, v, i
 
 
-def verify(bt: BranchTable, v: np.ndarray, i: np.ndarray, potentials: np.ndarray | None = None) -> dict:
+def roundoff_gamma(size: int) -> float:
+    """Round-off of one node's Kirchhoff sum per unit of the magnitudes that make it: machine
+    epsilon with a safety factor, growing with the square root of the system's size (the usual
+    growth of an LU solve's backward error; the worst case grows linearly, which real circuit
+    matrices do not show)."""
+    return BOUND_EPS * max(1.0, float(np.sqrt(max(size, 1))))
+
+
+def _incident(a: np.ndarray, b: np.ndarray, n: int, w: np.ndarray) -> np.ndarray:
+    """For every node, the sum of ``w`` over the elements that meet there (``w`` one row per sample
+    or a single row)."""
+    if w.ndim == 1:
+        return np.bincount(a, weights=w, minlength=n) + np.bincount(b, weights=w, minlength=n)
+    S = w.shape[0]
+    base = (np.arange(S, dtype=np.int64) * n)[:, None]
+    out = np.bincount((base + a).ravel(), weights=w.ravel(), minlength=S * n)
+    out += np.bincount((base + b).ravel(), weights=w.ravel(), minlength=S * n)
+    return out.reshape(S, n)
+
+
+def _leaving(a: np.ndarray, b: np.ndarray, n: int, i: np.ndarray) -> np.ndarray:
+    if i.ndim == 1:
+        return np.bincount(a, weights=i, minlength=n) - np.bincount(b, weights=i, minlength=n)
+    S = i.shape[0]
+    base = (np.arange(S, dtype=np.int64) * n)[:, None]
+    out = np.bincount((base + a).ravel(), weights=i.ravel(), minlength=S * n)
+    out -= np.bincount((base + b).ravel(), weights=i.ravel(), minlength=S * n)
+    return out.reshape(S, n)
+
+
+def node_check(a, b, n: int, pot, i, g, c, is_voltage, gamma: float, bounds=None, ground: int | None = None) -> dict:
+    """Each node's Kirchhoff residual judged against the currents that meet there.
+
+    For node k: ``residual_k = |sum of currents leaving k|``; ``current_k = sum |i_e|`` over the
+    elements meeting at k; ``roundoff_k = gamma * sum (2 |g_e| V_max + |c_e|)`` over the same elements
+    (a voltage-form branch counts its own |i_e| and the largest current, an unknown of the same
+    system; ``V_max`` the largest potential): the size of the
+    terms whose rounding makes the residual in a sound solve (the backward error of an LU solve
+    is ``gamma`` times ``|L| |U| |x|``, which mixes the potentials of the whole system into a row, so
+    a node near 0 V beside a 12 V one is allowed the round-off of 12 V). The judged figure is the residual beyond
+    round-off as a share of the currents that meet: ``max(residual_k - roundoff_k, 0) / current_k``,
+    at most 1 (a residual cannot exceed the currents that make it), 0 where the node balances
+    within round-off. A tiny resistance at a high potential therefore widens only its own nodes'
+    allowance, never the whole network's, and a source's short-circuit current never stands in
+    for currents that do not flow. ``bounds`` (each current's componentwise round-off bound, when known) adds to the
+    allowance of the nodes it meets. Works on one solve or on stacked samples (one row each).
+    """
+    ai = np.abs(i)
+    vmax = np.abs(pot).max(axis=-1, initial=0.0)
+    if i.ndim > 1:
+        vmax = vmax[:, None]
+    imax = ai.max(axis=-1, initial=0.0)
+    if i.ndim > 1:
+        imax = imax[:, None]
+    mag = np.where(is_voltage, ai + imax, np.abs(g) * (2 * vmax) + np.abs(c))
+    if np.any(is_voltage):
+        # a voltage-form branch's current is solved from the rows of the nodes it joins: it carries
+        # their round-off (passed along chains of such branches a few hops)
+        for _ in range(3):
+            at = _incident(a, b, n, mag)
+            ends = np.maximum(at[..., a], at[..., b])
+            mag = np.where(is_voltage, ai + imax + ends, mag)
+    leaving = _leaving(a, b, n, i)
+    residual = np.abs(leaving)
+    current = _incident(a, b, n, ai)
+    roundoff = gamma * _incident(a, b, n, mag)
+    if bounds is not None:
+        # the round-off each current carries from the potentials it is computed from (the solve's
+        # componentwise error bound, current_bounds): a node's residual can be as large as their sum
+        roundoff = roundoff + _incident(a, b, n, bounds)
+    if ground is not None:
+        # the ground node's balance is no equation of the system: it is minus the sum of all others
+        residual = residual.copy()
+        residual[..., ground] = 0.0
+    excess = np.maximum(residual - roundoff, 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rel = np.where(current > 0, excess / np.where(current > 0, current, 1.0), np.where(excess > 0, np.inf, 0.0))
+    rel = np.where(np.isnan(residual), np.inf, rel)
+    return {"leaving": leaving, "residual": residual, "current": current, "roundoff": roundoff, "relative": rel, "mag": mag}
+
+
+def verify(bt: BranchTable, v: np.ndarray, i: np.ndarray, potentials: np.ndarray | None = None, *, g=None, c=None, size: int | None = None, bounds=None) -> dict:
     """Kirchhoff current residual at every node and the power sum (Tellegen).
 
-    Residuals are judged relative to the size of the quantities that make them
-    (the largest current, and a share of the largest conductance times the largest
-    potential, which bounds the round-off in a current computed as g·ΔV), so a
-    network whose true currents are all zero is not condemned for round-off.
+    Each node's residual is judged against the currents that actually meet there, beyond the
+    round-off of the terms that make it (:func:`node_check`); the power sum against the powers
+    that flow, beyond the round-off its node residuals carry (the power sum is the sum over nodes
+    of potential times residual).
     """
     n = bt.n_nodes
-    leaving = np.bincount(bt.a, weights=i, minlength=n) - np.bincount(bt.b, weights=i, minlength=n)
-    kcl = float(np.abs(leaving).max(initial=0.0))
-    vmax = float(np.abs(potentials).max(initial=0.0)) if potentials is not None else float(np.abs(v).max(initial=0.0))
-    adm = ~bt.is_voltage
-    scale_i = max(
-        float(np.abs(i).max(initial=0.0)),
-        ROUNDOFF_SHARE * float(np.abs(bt.g[adm]).max(initial=0.0)) * vmax,
-        float(np.abs(bt.c[adm]).max(initial=0.0)),
-    )
+    g = bt.g if g is None else g
+    c = bt.c if c is None else c
+    pot = potentials if potentials is not None else np.zeros(n)
+    gamma = roundoff_gamma(size if size is not None else n + int(bt.is_voltage.sum()))
+    chk = node_check(bt.a, bt.b, n, pot, i, g, c, bt.is_voltage, gamma, bounds, bt.ground)
+    rel = chk["relative"]
+    worst = int(np.argmax(np.where(np.isnan(rel), np.inf, rel))) if n else 0
+    if n and rel[worst] == 0:
+        worst = int(np.argmax(chk["residual"]))
+    kcl = float(chk["residual"].max(initial=0.0))
     p = v * i
     psum = float(p.sum())
-    pscale = max(float(np.abs(p).sum()), scale_i * vmax)
+    pflow = float(np.abs(p).sum())
+    p_round = float(np.sum(np.abs(pot) * chk["roundoff"])) + gamma * pflow
+    p_excess = max(abs(psum) - p_round, 0.0) if np.isfinite(psum) else float("inf")
+    p_rel = p_excess / pflow if pflow > 0 else (0.0 if p_excess == 0 else float("inf"))
     vres = 0.0
     if bt.is_voltage.any():
         vres = float(np.abs(v[bt.is_voltage] - bt.e[bt.is_voltage]).max())
-    kcl_rel = kcl / scale_i if scale_i > 0 else kcl
-    p_rel = abs(psum) / pscale if pscale > 0 else abs(psum)
-    worst = int(np.abs(leaving).argmax()) if n else 0
+    kcl_rel = float(rel[worst]) if n else 0.0
     return {
         "kcl_max_residual_A": kcl,
         "kcl_worst_node": bt.node_names[worst] if n else None,
-        "current_scale_A": scale_i,
+        "current_scale_A": float(chk["current"][worst]) if n else 0.0,
         "power_sum_W": psum,
-        "power_scale_W": pscale,
+        "power_scale_W": pflow,
         "source_residual_V": vres,
         "kcl_relative": kcl_rel,
         "power_relative": p_rel,
         "ok": bool(kcl_rel <= WARN_REL and p_rel <= WARN_REL),
+        "_nodes": chk,
     }
 
 
@@ -195,7 +279,7 @@ def current_bounds(bt: BranchTable, system: System, factor, x: np.ndarray, pot: 
         return np.full(n, floor)
     W = getattr(factor, "bound_columns", None)
     if W is None:
-        W = np.asarray(factor.solve(bound_rhs(system.A, system.n_node_rows))).reshape(system.size, 3)
+        W = np.asarray(factor.solve(bound_rhs(system.A, system.n_node_rows, system.z))).reshape(system.size, 3)
     return _bounds_from(bt, system.row_of_node, system.n_node_rows, system.vbranch, x, system.z, W, pot, bt.g, bt.c) + floor
 
 
@@ -204,7 +288,7 @@ def _bounds_from(bt, rows, N, vb, x, z, W, pot, g, c) -> np.ndarray:
     xv = float(np.abs(x[:N]).max(initial=0.0))
     xi = float(np.abs(x[N:]).max(initial=0.0))
     zn = float(np.abs(z).max(initial=0.0))
-    dx = BOUND_EPS * (np.abs(W[:, 0]) * xv + np.abs(W[:, 1]) * xi + np.abs(W[:, 2]) * zn)
+    dx = BOUND_EPS * (np.abs(W[:, 0]) * xv + np.abs(W[:, 1]) * xi + np.abs(W[:, 2]))
     dv = np.zeros(bt.n_nodes)
     mask = rows >= 0
     dv[mask] = dx[rows[mask]]
@@ -273,7 +357,8 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
         model = newton.bt
         system, factor, x = newton.system, newton.factor, newton.x
         pot, v, i = newton.potentials, newton.v, newton.i
-        balance = verify(model, v, i, pot)
+        balance = verify(model, v, i, pot, size=system.size)
+        _check_leak_floors(model, v, i, balance["_nodes"]["current"])
         warnings += _second_operating_points(net, model, v)
         warnings += _dropped_out(model, newton.modes, v)
         sol = _finish(net, model, system, factor, x, pot, v, i, balance, warnings, refine=False, unsupplied=unsupplied)
@@ -292,16 +377,21 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
                 err.span = net.element(err.element).span
         raise
     pot, v, i = currents(bt, system, x)
-    balance = verify(bt, v, i, pot)
+    balance = verify(bt, v, i, pot, size=system.size)
     return _finish(
         net, bt, system, factor, x, pot, v, i, balance, warnings, refine=True, span=span, estimate_condition=estimate_condition, unsupplied=unsupplied
     )
 
 
 def _finish(
-    net, bt, system, factor, x, pot, v, i, balance, warnings, *, refine: bool, span: float = 0.0, estimate_condition: bool = False, unsupplied=()
+    net, bt, system, factor, x, pot, v, i, balance, warnings, *, refine: bool, span: float = 0.0, estimate_condition: bool = False, unsupplied=(), g=None, c=None
 ) -> Solution:
-    """Refinement, conditioning and the verdict on the self-check; builds the Solution."""
+    """Refinement, conditioning and the verdict on the self-check; builds the Solution.
+
+    ``g``, ``c`` are the conductances of the system solved (the nonlinear elements' companions);
+    ``i`` holds the elements' currents by their own laws."""
+    g = bt.g if g is None else g
+    c = bt.c if c is None else c
     if system.dense or span > SPAN_WARN_DECADES or not balance["ok"] or estimate_condition:
         cond = condition_estimate(system, factor)
         balance["condition_estimate"] = cond
@@ -322,27 +412,52 @@ def _finish(
         r = system.z - system.A @ x
         x = x + factor.solve(r)
         pot, v, i = currents(bt, system, x)
-        balance = verify(bt, v, i, pot)
+        balance = verify(bt, v, i, pot, size=system.size)
         balance["refined"] = True
-    worst = max(balance["kcl_relative"], balance["power_relative"])
     if not np.all(np.isfinite(v)) or not np.all(np.isfinite(i)) or not np.isfinite(balance["power_sum_W"]):
         raise NumericalError(
             "the solution holds values too large to verify (a current or power overflows)",
             hint="check for an element driven far outside its range, e.g. a diode across a high-voltage source",
         )
+    # each node's residual against the currents that meet there and their round-off bounds
+    bounds = current_bounds(bt, system, factor, x, pot)
+    kept = {k: balance[k] for k in ("refined", "condition_estimate") if k in balance}
+    balance = verify(bt, v, i, pot, g=g, c=c, size=system.size, bounds=bounds)
+    balance.update(kept)
+    # the backward error of the solve: one step of refinement must not move the answer
+    _check_refinement(bt, system, factor, x, pot, i, g, c, balance, bounds)
+    nodes = balance.pop("_nodes")
+    worst = max(balance["kcl_relative"], balance["power_relative"])
     if not worst <= REFUSE_REL:  # also refuses a NaN residual
         raise NumericalError(
             f"the solution does not verify: Kirchhoff residual {balance['kcl_max_residual_A']:.3g} A at "
-            f"'{balance['kcl_worst_node']}', power sum {balance['power_sum_W']:.3g} W",
-            hint="element values may span too many decades; check for extreme resistances",
+            f"'{balance['kcl_worst_node']}' (beside {balance['current_scale_A']:.3g} A that meet there), "
+            f"power sum {balance['power_sum_W']:.3g} W",
+            **_node_culprits(bt, balance["kcl_worst_node"]),
         )
     if not balance["ok"]:
         warnings.append(
             f"self-check residuals are larger than usual (Kirchhoff {balance['kcl_relative']:.2g}, power {balance['power_relative']:.2g} relative)"
         )
-    # currents within the solve's round-off are zero (their elements are idle)
-    bounds = current_bounds(bt, system, factor, x, pot, floor=balance["kcl_max_residual_A"])
+    _check_potential_bound(net, bt, pot)
+    # currents within the solve's round-off are zero (their elements are idle); a current the
+    # solve cannot resolve (a tiny resistance's) is taken from Kirchhoff's law at a node where
+    # every other current is resolved
+    i, bounds = recover_currents(bt, i, bounds)
+    res = np.abs(_leaving(bt.a, bt.b, bt.n_nodes, i))
+    if bt.n_nodes:
+        res[bt.ground] = 0.0  # no equation of the system (minus the sum of all others)
+        balance["kcl_max_residual_A"] = float(res.max())
+        balance["kcl_worst_node"] = bt.node_names[int(res.argmax())]
+        balance["power_sum_W"] = float((v * i).sum())
+    # a current below what its nodes balance to cannot be told from zero (the better of its two
+    # ends: a current fixed by Kirchhoff's law at one end is not blurred by the other's round-off)
+    # and no current is known better than machine precision of what meets at its nodes
+    end = np.abs(_leaving(bt.a, bt.b, bt.n_nodes, i))
+    meet = BOUND_EPS * _incident(bt.a, bt.b, bt.n_nodes, np.abs(i))
+    bounds = bounds + np.minimum(end[bt.a], end[bt.b]) + np.maximum(meet[bt.a], meet[bt.b])
     i = np.where(np.abs(i) <= bounds, 0.0, i)
+    del nodes
     if system.islands:
         warnings.append(_island_note(net, bt, system.islands, pot))
     sol = Solution(net, bt, pot, v, i, balance, warnings)
@@ -351,6 +466,172 @@ def _finish(
     sol.islands = system.islands or None
     sol.unsupplied = list(unsupplied)
     return sol
+
+
+#: a refinement step that moves a current by more than this share of the currents meeting at its
+#: nodes (beyond round-off), or a potential by more than this share of the largest, refuses the answer;
+#: the same share as the worst-case error the condition estimate accepts
+REFINE_REFUSE = COND_REFUSE
+
+
+def _check_refinement(bt, system, factor, x, pot, i, g, c, balance, bounds) -> None:
+    """Backward error of the solve: ``dx = A^-1 (z - A x)`` (one step of iterative refinement with
+    the same factorisation) must be small beside the answer: potentials within ``REFINE_REFUSE``
+    of the largest, each current within that share of the currents meeting at its nodes plus its
+    round-off. A solve that a step of refinement would move further is refused."""
+    if system.size == 0 or factor is None:
+        return
+    r = system.z - system.A @ x
+    dx = np.asarray(factor.solve(r), dtype=float)
+    if not np.all(np.isfinite(dx)):
+        raise NumericalError("the solution does not verify: one step of iterative refinement does not give a finite correction")
+    from .mna import bound_rhs
+
+    N = system.n_node_rows
+    W = getattr(factor, "bound_columns", None)
+    if W is None:
+        W = np.asarray(factor.solve(bound_rhs(system.A, N, system.z))).reshape(system.size, 3)
+    xv = float(np.abs(x[:N]).max(initial=0.0))
+    xi = float(np.abs(x[N:]).max(initial=0.0))
+    zn = float(np.abs(system.z).max(initial=0.0))
+    xbound = BOUND_EPS * (np.abs(W[:, 0]) * xv + np.abs(W[:, 1]) * xi + np.abs(W[:, 2]))
+    # the potentials' own scale, at least the EMFs and what the source currents make across the conductances
+    gmax = float(np.abs(g[~bt.is_voltage]).max(initial=0.0))
+    vmax = max(xv, bt.max_emf, zn / gmax if gmax > 0 else 0.0)
+    over_v = np.abs(dx[:N]) - (REFINE_REFUSE * vmax + 4 * xbound[:N])
+    dv = float(np.abs(dx[:N]).max(initial=0.0))
+    dpot = system.potentials(dx)
+    di = g * (dpot[bt.a] - dpot[bt.b])
+    if len(system.vbranch):
+        di[system.vbranch] = dx[N:]
+    nodes = balance["_nodes"]
+    cur = nodes["current"]
+    allow = REFINE_REFUSE * np.maximum(cur[bt.a], cur[bt.b]) + 4 * bounds + np.maximum(nodes["roundoff"][bt.a], nodes["roundoff"][bt.b])
+    bad = np.abs(di) > allow
+    balance["refinement_V"] = dv
+    if (over_v > 0).any() or bad.any():
+        k = int(np.argmax(np.abs(di) - allow)) if bad.any() else int(np.argmax(np.abs(dpot)))
+        what = (
+            f"element {bt.names[k]}'s current by {abs(di[k]):.3g} A" if bad.any() else f"the potentials by {dv:.3g} V (of {vmax:.3g} V)"
+        )
+        raise NumericalError(
+            f"the solution does not verify: one step of iterative refinement moves {what}, so the solve has no "
+            "trustworthy digits there",
+            culprits=(bt.names[k],) if bad.any() else (),
+            element=bt.names[k] if bad.any() else None,
+            hint="element values may span too many decades; check for extreme resistances",
+        )
+
+
+def recover_currents(bt: BranchTable, i: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Currents the solve cannot resolve, taken from Kirchhoff's current law where it can.
+
+    A current is *unresolved* when its round-off bound exceeds a thousandth of it (fewer than
+    three digits: a 1 nOhm cell's current is ``g (V_a - V_b - emf)`` with ``g = 1e9``, so a
+    potential rounded to 1e-15 V leaves it uncertain by a microampere). At a node where it is the
+    only unresolved current, Kirchhoff's law gives it from the others exactly, with the sum of
+    their bounds; this is repeated until no node has a single unresolved current.
+    """
+    n = bt.n_nodes
+    i = i.copy()
+    bounds = bounds.copy()
+    loose = (bounds > 1e-3 * np.abs(i)) & (bt.a != bt.b)
+    if not loose.any():
+        return i, bounds
+    for _ in range(len(i)):
+        count = np.bincount(bt.a[loose], minlength=n) + np.bincount(bt.b[loose], minlength=n)
+        leaving = _leaving(bt.a, bt.b, n, np.where(loose, 0.0, i))
+        tight = _incident(bt.a, bt.b, n, np.where(loose, 0.0, bounds))
+        e = np.flatnonzero(loose)
+        ta = np.where(count[bt.a[e]] == 1, tight[bt.a[e]], np.inf)
+        tb = np.where(count[bt.b[e]] == 1, tight[bt.b[e]], np.inf)
+        use_a = ta <= tb
+        best = np.minimum(ta, tb)
+        ok = np.isfinite(best)
+        if not ok.any():
+            break
+        e, use_a, best = e[ok], use_a[ok], best[ok]
+        # the current leaving its first node a balances the others there; entering b likewise
+        new = np.where(use_a, -leaving[bt.a[e]], leaving[bt.b[e]])
+        better = best < bounds[e]
+        i[e[better]] = new[better]
+        bounds[e[better]] = best[better]
+        loose[e] = False
+    return i, bounds
+
+
+def _check_leak_floors(model: BranchTable, v: np.ndarray, i: np.ndarray, node_current: np.ndarray) -> None:
+    """Refuse an answer that rests on the solver's 1 pS floor of a junction diode without ``roff``.
+
+    That floor keeps the junction's conductance positive for the solve; it is no part of the
+    diode. Where it carries a real share of the current at the diode's nodes (a quarter of what
+    meets there: all of it flows through one element), the answer is an artefact of it: a current
+    source pushing its current backwards through a blocked diode, the node driven to wherever
+    1 pS carries it. The circuit then has no operating point on that branch."""
+    from ..kinds.diode import G_FLOOR
+
+    if "diode" not in model.groups:
+        return
+    pos, cols = model.groups["diode"]
+    floor = ~np.isnan(cols["is"]) & ~(cols["roff"] > 0)
+    if not floor.any():
+        return
+    p = pos[floor]
+    leak = G_FLOOR * np.abs(v[p])
+    share = np.maximum(node_current[model.a[p]], node_current[model.b[p]])
+    bad = leak > 0.25 * share
+    if not bad.any():
+        return
+    k = int(p[np.argmax(np.where(bad, leak, -1.0))])
+    names = (model.names[k],) + tuple(
+        model.names[e] for e in np.flatnonzero(((model.a == model.a[k]) | (model.b == model.a[k]) | (model.a == model.b[k]) | (model.b == model.b[k])) & (np.arange(len(model.names)) != k))
+    )[:11]
+    raise NoOperatingPointError(
+        f"no physical operating point found: junction diode {model.names[k]} would carry {abs(i[k]):.4g} A backwards at "
+        f"{-v[k]:.4g} V reverse, through nothing but the solver's 1 pS stand-in leak; elements at its nodes: "
+        f"{', '.join(names[1:])}",
+        culprits=names,
+        element=names[0],
+        hint="a current source or charger feeds a node whose only return is a blocked diode; check polarities, or give "
+        "the diode its real reverse resistance (roff=)",
+    )
+
+
+def _node_culprits(bt: BranchTable, node: str | None) -> dict:
+    """The elements that meet at a node, for an error that names where a check failed."""
+    if node is None or node not in bt.node_names:
+        return {"hint": "element values may span too many decades; check for extreme resistances"}
+    k = bt.node_names.index(node)
+    names = tuple(bt.names[e] for e in np.flatnonzero((bt.a == k) | (bt.b == k)))[:12]
+    return {
+        "culprits": names,
+        "element": names[0] if names else None,
+        "hint": f"the elements meeting at '{node}' are {', '.join(names) or 'none'}; element values may span too many decades (check for extreme resistances)",
+    }
+
+
+def _check_potential_bound(net, bt: BranchTable, pot: np.ndarray) -> None:
+    """Refuse potentials beyond the physical bound of :mod:`dcnet.analysis.bound` (no operating
+    point of the circuit lies there)."""
+    from .bound import potential_bound
+
+    vmax = float(np.abs(pot).max(initial=0.0))
+    if vmax <= bt.max_emf * (1 + 1e-9):
+        return  # within the largest EMF: every bound is at least that
+    pb = net.cached("potential_bound", lambda: potential_bound(bt)) if net is not None else potential_bound(bt)
+    if not vmax > pb.value * (1 + 1e-6) + 1e-9:
+        return
+    k = int(np.argmax(np.abs(pot)))
+    node = bt.node_names[k]
+    names = tuple(bt.names[e] for e in np.flatnonzero((bt.a == k) | (bt.b == k)))[:12]
+    raise NoOperatingPointError(
+        f"no physical operating point: the solve put node '{node}' at {pot[k]:.4g} V, beyond the {pb.value:.4g} V that any "
+        f"operating point of this circuit can reach ({pb.describe()}); the elements at that node are {', '.join(names)}",
+        culprits=names,
+        element=names[0] if names else None,
+        hint="a current source or charger may be feeding a node that only blocked diodes or open elements join to the rest; "
+        "check the polarity of sources and diodes",
+    )
 
 
 def _island_note(net, bt, islands, pot) -> str:
