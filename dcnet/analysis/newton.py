@@ -28,7 +28,6 @@ from ..kinds import KINDS
 from ..kinds.diode import K_OVER_Q
 from .branches import BranchTable
 from .mna import assemble, solve_system
-from .solve import ROUNDOFF_SHARE
 
 __all__ = ["NewtonResult", "newton_solve", "VTOL", "ITOL", "MAX_ITER"]
 
@@ -146,7 +145,7 @@ def _start_model(bt: BranchTable, scale: float) -> BranchTable:
     return dataclasses.replace(bt, c=c, e=e)
 
 
-def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_ITER):
+def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_ITER, clamp=None):
     """Newton at one source scale from ``start`` = (pot, v, i) or None; returns (converged, state)."""
     from .solve import currents
 
@@ -158,6 +157,20 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
         except NumericalError:
             return False, None
         pot, v, i = currents(model, system, x, model.g, model.c)
+        if clamp is not None and clamp[1] > 0 and np.abs(pot).max(initial=0.0) > clamp[1]:
+            # the starting model can leave a node held only by a stand-in leak (a current source
+            # behind blocked diodes, constant-power loads off), far beyond every EMF: start instead
+            # from everything on (diodes conducting, constant-power loads linearised at the
+            # largest EMF), within the EMFs; from far above, Newton would find the load's unstable
+            # high-voltage point on the current source, or the leak's
+            model = _all_on(bt, groups, scale)
+            if model is not None:
+                system = _assemble(model, shunt)
+                x, factor = _try_solve(system)
+                if np.all(np.isfinite(x)):
+                    pot, v, i = currents(model, system, x, model.g, model.c)
+            pot = np.clip(pot, -clamp[1], clamp[1])
+            v = pot[bt.a] - pot[bt.b]
     else:
         pot, v, i = start
     state = None
@@ -181,33 +194,102 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
             history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": changed})
             return False, state
         pot_new, _, i_model = currents(model, system, x_new, model.g, model.c)
+        if clamp is not None and np.isfinite(clamp[0]):
+            # no operating point lies beyond the physical bound (analysis/bound.py): an iterate
+            # that runs past it is diverging, never converging
+            pot_new = np.clip(pot_new, -clamp[0], clamp[0])
         res_old = _residual(bt, model, v, _exact(bt, model, groups, v, np.where(model.is_voltage, i_model, model.g * v + model.c)))
         alpha = 1.0
-        # the residual's natural size: the largest current, or a share of conductance times
-        # potential (which bounds the round-off of a current computed as g * dV), as the
-        # self-check judges it
-        iscale = max(
-            float(np.abs(i_model).max(initial=0.0)),
-            ROUNDOFF_SHARE * float(np.abs(model.g).max(initial=0.0)) * float(np.abs(pot_new).max(initial=0.0)),
-            1e-12,
-        )
-        good_enough = ITOL * iscale + 1e-12
+        # each node's residual judged as the self-check judges it (solve.node_check): against the
+        # currents that meet there, beyond the round-off of the solve (its componentwise bounds)
+        bounds = _round_off(model, system, factor, x_new, pot_new)
         while True:
             pot_try = pot + alpha * (pot_new - pot)
             v_try = pot_try[bt.a] - pot_try[bt.b]
             i_try = _exact(bt, model, groups, v_try, np.where(model.is_voltage, i_model, model.g * v_try + model.c))
             res = _residual(bt, model, v_try, i_try)
-            if res <= max(res_old, good_enough) or alpha <= 1 / 64 or changed:
+            settled, rel = _settled(bt, model, system, pot_try, i_try, bounds)
+            if res <= res_old or settled or alpha <= 1 / 64 or changed:
                 break
             alpha /= 2
         step = float(np.abs(pot_try - pot).max(initial=0.0))
-        history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": step, "residual_A": res, "alpha": alpha, "modes_changed": changed})
+        history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": step, "residual_A": res, "alpha": alpha, "modes_changed": changed, "relative": rel})
         pot, v, i = pot_try, v_try, i_try
         state = (model, system, factor, x_new, pot, v, i)
         vscale = max(float(np.abs(pot).max(initial=0.0)), 1.0)
-        if changed == 0 and step <= VTOL * vscale and res <= good_enough:
+        if changed == 0 and step <= VTOL * vscale and settled:
             return True, state
     return False, state
+
+
+def _all_on(bt: BranchTable, groups: list[_Group], scale: float) -> BranchTable | None:
+    """A starting model with everything on: piecewise-linear diodes conducting (their modes set so),
+    junction diodes linearised at 1 A forward, constant-power loads linearised at the largest EMF.
+    None when there is nothing to turn on."""
+    from ..kinds.diode import CONDUCTING
+
+    if bt.max_emf <= 0:
+        return None
+    model = _start_model(bt, scale)
+    is_v, g, c, e = model.is_voltage.copy(), model.g.copy(), model.c.copy(), model.e.copy()
+    gbig = STIFF * max(float(np.abs(bt.g).max(initial=0.0)), 1e-300)
+    any_on = False
+    for grp in groups:
+        cols = grp.cols
+        if grp.name == "diode":
+            pwl = np.isnan(cols["is"])
+            r = np.where(cols["r"] > 0, cols["r"], 1.0 / gbig)
+            gd = np.where(pwl, 1.0 / r, 0.0)
+            cd = np.where(pwl, -cols["drop"] * gd, 0.0)
+            j = ~pwl
+            if j.any():
+                vt = cols["n"][j] * K_OVER_Q * (cols["temp"][j] + 273.15)
+                isat = cols["is"][j]
+                v0 = vt * np.log1p(1.0 / isat)
+                gj = (1.0 + isat) / vt
+                gd[j] = gj
+                cd[j] = 1.0 - gj * v0
+                prev = grp.prev.copy()
+                prev[j] = v0
+                grp.prev = prev
+            g[grp.pos], c[grp.pos], is_v[grp.pos] = gd, cd, False
+            grp.mode = np.where(pwl, CONDUCTING, grp.mode)
+            any_on = True
+        elif grp.name == "load":
+            P = cols["power"] * scale**2
+            vn = bt.max_emf * scale
+            g[grp.pos] = -P / vn**2
+            c[grp.pos] = 2 * P / vn
+            grp.prev = np.full(len(grp.pos), vn)
+            any_on = True
+    if not any_on:
+        return None
+    return dataclasses.replace(model, is_voltage=is_v, g=g, c=c, e=e)
+
+
+def _round_off(model, system, factor, x, pot) -> np.ndarray:
+    """The componentwise round-off bound of every current of this iteration's linear solve."""
+    from .solve import current_bounds
+
+    if factor is None or not np.all(np.isfinite(x)):
+        return np.zeros(model.n_elements)
+    with np.errstate(all="ignore"):
+        b = current_bounds(model, system, factor, x, pot)
+    return np.where(np.isfinite(b), b, 0.0)
+
+
+def _settled(bt, model, system, pot, i, bounds) -> tuple[bool, float]:
+    """Newton's stopping rule on the residual: every node balances within ``ITOL`` of the currents
+    that meet there, beyond the solve's round-off (which grows with the system's size), as the
+    self-check judges it (:func:`dcnet.analysis.solve.node_check`)."""
+    from .solve import node_check, roundoff_gamma
+
+    with np.errstate(all="ignore"):
+        chk = node_check(bt.a, bt.b, bt.n_nodes, pot, i, model.g, model.c, model.is_voltage, roundoff_gamma(system.size), bounds, bt.ground)
+    rel = float(np.max(chk["relative"], initial=0.0))
+    if not np.isfinite(rel):
+        return False, rel
+    return rel <= ITOL, rel
 
 
 def _try_solve(system):
@@ -258,6 +340,11 @@ def newton_solve(bt: BranchTable) -> NewtonResult:
     only_power = all(kind == "load" for kind, (pos, _) in bt.groups.items() if bt.nonlinear[pos].any())
     if only_power:  # with no other nonlinear element the Thevenin figures are exact up front
         _check_power_demands(bt, dropped=held_off)
+    from .bound import potential_bound
+
+    pb = potential_bound(bt)
+    hard = pb.value * (1 + 1e-6) + 1e-9 if np.isfinite(pb.value) else float("inf")
+    clamp = (hard, hard if np.isfinite(hard) else pb.emf_sum)
     gscale = float(np.abs(bt.g).max(initial=1.0))
     plans = [
         ("newton", [(1.0, 0.0)]),
@@ -273,7 +360,7 @@ def newton_solve(bt: BranchTable) -> NewtonResult:
             start = None
             ok = False
             for scale, shunt in steps:
-                ok, state = _iterate(bt, groups, start, scale, history, phase, shunt=shunt)
+                ok, state = _iterate(bt, groups, start, scale, history, phase, shunt=shunt, clamp=clamp)
                 if not ok:
                     break
                 start = state[4:7]
@@ -310,13 +397,29 @@ def _weakest_load(bt: BranchTable, groups: list[_Group], state, dropped: set[int
 def _raise_unsettled(bt, groups, state, history):
     names = []
     if state is not None:
-        model, _, _, _, pot, v, i = state
+        model, system, factor, x, pot, v, i = state
         if pot is not None:
-            for grp in groups:
-                exact = grp.kind.exact_current(grp.cols, v[grp.pos], i[grp.pos], grp.mode)
-                off = np.abs(exact - i[grp.pos])
-                order = np.argsort(-off)
-                names += [bt.names[grp.pos[k]] for k in order[:5]]
+            # the nonlinear elements at the nodes that do not balance, worst node first (as the
+            # stopping rule judges them), rather than the largest raw differences, which at
+            # round-off name arbitrary elements
+            from .solve import node_check, roundoff_gamma
+
+            with np.errstate(all="ignore"):
+                chk = node_check(bt.a, bt.b, bt.n_nodes, pot, i, model.g, model.c, model.is_voltage, roundoff_gamma(system.size), _round_off(model, system, factor, x, pot), bt.ground)
+            rel = np.nan_to_num(chk["relative"], nan=np.inf)
+            for k in np.argsort(-rel, kind="stable"):
+                if not rel[k] > ITOL or len(names) >= 5:
+                    break
+                for e in np.flatnonzero(bt.nonlinear & ((bt.a == k) | (bt.b == k))):
+                    if bt.names[e] not in names and len(names) < 5:
+                        names.append(bt.names[e])
+            if not names:  # every node balances: the modes or the steps did not settle
+                for grp in groups:
+                    exact = grp.kind.exact_current(grp.cols, v[grp.pos], i[grp.pos], grp.mode)
+                    off = np.abs(exact - i[grp.pos])
+                    order = np.argsort(-off)
+                    names += [bt.names[grp.pos[k]] for k in order[:5]]
+                names = names[:5]
     if not names:
         names = [bt.names[p] for p in np.flatnonzero(bt.nonlinear)[:5]]
     last = history[-3:]
