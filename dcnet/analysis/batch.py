@@ -25,7 +25,7 @@ import numpy as np
 
 from ..errors import NumericalError
 from .branches import BranchTable
-from .solve import REFUSE_REL, ROUNDOFF_SHARE, WARN_REL
+from .solve import BOUND_EPS, REFUSE_REL, WARN_REL, _incident, _leaving, node_check, recover_currents, roundoff_gamma
 
 __all__ = ["BatchSolution", "solve_batch", "dense_chunk"]
 
@@ -272,79 +272,131 @@ def currents_batch(bt: BranchTable, layout, x: np.ndarray, g, c):
     return pot, v, i
 
 
-def verify_batch(bt: BranchTable, pot, v, i, g, c) -> dict:
-    """The self-check of :func:`dcnet.analysis.solve.verify`, for every sample at once."""
+def verify_batch(bt: BranchTable, pot, v, i, g, c, *, size: int | None = None, bounds=None) -> dict:
+    """The self-check of :func:`dcnet.analysis.solve.verify`, for every sample at once: each node's
+    residual against the currents that meet there, beyond their round-off (``solve.node_check``)."""
     S, n = pot.shape
-    base = (np.arange(S, dtype=np.int64) * n)[:, None]
-    leaving = np.bincount((base + bt.a).ravel(), weights=i.ravel(), minlength=S * n) - np.bincount(
-        (base + bt.b).ravel(), weights=i.ravel(), minlength=S * n
-    )
-    leaving = leaving.reshape(S, n)
-    kcl = np.abs(leaving).max(axis=1, initial=0.0)
-    vmax = np.abs(pot).max(axis=1, initial=0.0)
-    adm = ~bt.is_voltage
-    g2 = np.broadcast_to(g, (S, len(adm)))[:, adm]
-    c2 = np.broadcast_to(c, (S, len(adm)))[:, adm]
-    scale_i = np.maximum.reduce(
-        [np.abs(i).max(axis=1, initial=0.0), ROUNDOFF_SHARE * np.abs(g2).max(axis=1, initial=0.0) * vmax, np.abs(c2).max(axis=1, initial=0.0)]
-    )
+    m = len(bt.a)
+    g2 = np.broadcast_to(g, (S, m))
+    c2 = np.broadcast_to(c, (S, m))
+    gamma = roundoff_gamma(size if size is not None else n + int(bt.is_voltage.sum()))
+    chk = node_check(bt.a, bt.b, n, pot, i, g2, c2, bt.is_voltage, gamma, bounds, bt.ground)
+    rel = np.where(np.isnan(chk["relative"]), np.inf, chk["relative"])
+    kcl_rel = rel.max(axis=1, initial=0.0)
+    kcl = chk["residual"].max(axis=1, initial=0.0)
     p = v * i
     psum = p.sum(axis=1)
-    pscale = np.maximum(np.abs(p).sum(axis=1), scale_i * vmax)
+    pflow = np.abs(p).sum(axis=1)
+    p_round = np.sum(np.abs(pot) * chk["roundoff"], axis=1) + gamma * pflow
     with np.errstate(divide="ignore", invalid="ignore"):
-        kcl_rel = np.where(scale_i > 0, kcl / scale_i, kcl)
-        p_rel = np.where(pscale > 0, np.abs(psum) / pscale, np.abs(psum))
+        p_excess = np.where(np.isfinite(psum), np.maximum(np.abs(psum) - p_round, 0.0), np.inf)
+        p_rel = np.where(pflow > 0, p_excess / np.where(pflow > 0, pflow, 1.0), np.where(p_excess > 0, np.inf, 0.0))
     return {
         "kcl_max_residual_A": kcl,
         "power_sum_W": psum,
         "kcl_relative": kcl_rel,
         "power_relative": p_rel,
         "ok": (kcl_rel <= WARN_REL) & (p_rel <= WARN_REL),
+        "_nodes": chk,
     }
 
 
 def solve_batch(bt: BranchTable, g, c, e, *, sparse: SparsePattern | None = None) -> BatchSolution:
-    """Solve every sample of one chunk and verify each (refining those that need it)."""
+    """Solve every sample of one chunk and verify each as a single solve is (refining those that
+    need it, one step of refinement judged for all, unresolved currents taken from Kirchhoff's law)."""
     if sparse is None:
         x, A, z, layout, W = dense_chunk(bt, g, c, e)
     else:
         x, mats, z, layout, W = sparse_samples(bt, g, c, e, sparse)
+    S, m = x.shape
+    zero = np.zeros(S)
     pot, v, i = currents_batch(bt, layout, x, g, c)
-    bal = verify_batch(bt, pot, v, i, g, c)
+    bounds = bounds_batch(bt, layout, W, x, z, pot, g, c, zero)
+    bal = verify_batch(bt, pot, v, i, g, c, size=m, bounds=bounds)
+
+    def correction(rows):
+        out = np.zeros((len(rows), m))
+        for j, k in enumerate(rows):
+            if sparse is None:
+                out[j] = np.linalg.solve(A[k], z[k] - A[k] @ x[k])
+            else:
+                Ak, lu = mats[k]
+                out[j] = sparse.Pc @ lu.solve(z[k] - Ak @ x[k])
+        return out
+
     bad = np.flatnonzero(~bal["ok"])
     if len(bad):
         # one round of iterative refinement for the samples whose self-check is not clean
-        for k in bad:
-            if sparse is None:
-                r = z[k] - A[k] @ x[k]
-                x[k] = x[k] + np.linalg.solve(A[k], r)
-            else:
-                Ak, lu = mats[k]
-                r = z[k] - Ak @ x[k]
-                x[k] = x[k] + sparse.Pc @ lu.solve(r)
+        x[bad] = x[bad] + correction(bad)
         pot, v, i = currents_batch(bt, layout, x, g, c)
-        bal = verify_batch(bt, pot, v, i, g, c)
-        worst = np.maximum(bal["kcl_relative"], bal["power_relative"])
-        refused = np.flatnonzero(worst > REFUSE_REL)
-        if len(refused):
-            k = int(refused[0])
-            raise NumericalError(
-                f"sample {k + 1} does not verify: Kirchhoff residual {bal['kcl_max_residual_A'][k]:.3g} A, "
-                f"power sum {bal['power_sum_W'][k]:.3g} W",
-                hint="element values may span too many decades in this sample; check the range of the study",
-            )
-    # currents within each sample's round-off are zero, as in a single solve (solve.current_bounds)
-    bounds = bounds_batch(bt, layout, W, x, z, pot, g, c, bal["kcl_max_residual_A"])
+        bounds = bounds_batch(bt, layout, W, x, z, pot, g, c, zero)
+        bal = verify_batch(bt, pot, v, i, g, c, size=m, bounds=bounds)
+    worst = np.maximum(bal["kcl_relative"], bal["power_relative"])
+    refused = np.flatnonzero(~(worst <= REFUSE_REL))
+    if len(refused):
+        k = int(refused[0])
+        raise NumericalError(
+            f"sample {k + 1} does not verify: Kirchhoff residual {bal['kcl_max_residual_A'][k]:.3g} A, "
+            f"power sum {bal['power_sum_W'][k]:.3g} W",
+            hint="element values may span too many decades in this sample; check the range of the study",
+        )
+    # the backward error: one step of refinement must not move any sample's answer (solve._check_refinement)
+    if m:
+        dx = correction(range(S))
+        row, N, vb = layout
+        _judge_refinement_batch(bt, layout, x, z, W, dx, g, bal["_nodes"], bounds)
+    # unresolved currents from Kirchhoff's law, then currents within round-off are zero, as in a
+    # single solve (solve.recover_currents, solve._finish)
+    for k in range(S):
+        loose = bounds[k] > 1e-3 * np.abs(i[k])
+        if loose.any():
+            i[k], bounds[k] = recover_currents(bt, i[k], bounds[k])
+    n = bt.n_nodes
+    end = np.abs(_leaving(bt.a, bt.b, n, i))
+    meet = BOUND_EPS * _incident(bt.a, bt.b, n, np.abs(i))
+    bounds = bounds + np.minimum(end[:, bt.a], end[:, bt.b]) + np.maximum(meet[:, bt.a], meet[:, bt.b])
     i = np.where(np.abs(i) <= bounds, 0.0, i)
+    bal.pop("_nodes")
     sol = BatchSolution(pot, v, i, bal, (A if sparse is None else mats, sparse, layout))
     sol.bounds = bounds
     return sol
 
 
+def _judge_refinement_batch(bt, layout, x, z, W, dx, g, nodes, bounds) -> None:
+    """:func:`dcnet.analysis.solve._check_refinement` for every sample."""
+    from .solve import BOUND_EPS, REFINE_REFUSE
+
+    row, N, vb = layout
+    S = x.shape[0]
+    xv = np.abs(x[:, :N]).max(axis=1, initial=0.0)
+    xi = np.abs(x[:, N:]).max(axis=1, initial=0.0)
+    xbound = BOUND_EPS * (np.abs(W[:, :, 0]) * xv[:, None] + np.abs(W[:, :, 1]) * xi[:, None] + np.abs(W[:, :, 2]))
+    g2 = np.broadcast_to(g, (S, len(bt.a)))
+    gmax = np.abs(g2[:, ~bt.is_voltage]).max(axis=1, initial=0.0)
+    zn = np.abs(z).max(axis=1, initial=0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        vscale = np.maximum(np.maximum(xv, bt.max_emf), np.where(gmax > 0, zn / np.where(gmax > 0, gmax, 1.0), 0.0))
+    over_v = (np.abs(dx[:, :N]) - (REFINE_REFUSE * vscale[:, None] + 4 * xbound[:, :N])).max(axis=1, initial=-1.0) > 0
+    dpot = np.zeros((S, bt.n_nodes))
+    mask = row >= 0
+    dpot[:, mask] = dx[:, row[mask]]
+    di = g2 * (dpot[:, bt.a] - dpot[:, bt.b])
+    if len(vb):
+        di[:, vb] = dx[:, N:]
+    cur, rnd = nodes["current"], nodes["roundoff"]
+    allow = REFINE_REFUSE * np.maximum(cur[:, bt.a], cur[:, bt.b]) + 4 * bounds + np.maximum(rnd[:, bt.a], rnd[:, bt.b])
+    bad = (np.abs(di) > allow).any(axis=1) | over_v | ~np.isfinite(dx).all(axis=1)
+    if bad.any():
+        k = int(np.flatnonzero(bad)[0])
+        raise NumericalError(
+            f"sample {k + 1} does not verify: one step of iterative refinement moves its answer, so the solve has no "
+            "trustworthy digits there",
+            hint="element values may span too many decades in this sample; check the range of the study",
+        )
+
+
 def bounds_batch(bt: BranchTable, layout, W, x, z, pot, g, c, floor) -> np.ndarray:
     """The round-off bound of every element current of every sample (solve.current_bounds)."""
-    from .solve import BOUND_EPS
-
     row, N, vb = layout
     S = x.shape[0]
     if x.shape[1] == 0:

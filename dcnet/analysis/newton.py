@@ -34,6 +34,12 @@ __all__ = ["NewtonResult", "newton_solve", "VTOL", "ITOL", "MAX_ITER"]
 VTOL = 1e-9  # volts, plus the same relative to the largest potential
 ITOL = 1e-9  # relative to the current scale
 MAX_ITER = 60
+#: a junction diode held by ideal branches at a voltage where its law gives more than this current
+#: (amperes) is refused: far beyond any fault current of a DC installation (common practice, no
+#: source), and where the companion model's conductance would swamp the rest of the matrix
+HELD_CEILING = 1e6
+#: a constant-power demand within this share of the most the network can deliver counts as beyond it
+LIMIT_EDGE = 1e-9
 #: conductance, relative to the largest in the circuit, that stands in for a voltage-form
 #: nonlinear branch for one step when the voltage forms together are contradictory
 STIFF = 1e6
@@ -483,13 +489,22 @@ def _check_power_demands(bt: BranchTable, frozen=None, dropped: set[int] = froze
             continue
         p_max = v_th * v_th / (4 * r_th) if v_th > 0 else 0.0
         has_vmin = not np.isnan(cols["vmin"][k])
-        if demand > p_max and has_vmin:
+        # at the limit itself the two operating points merge into one on the knife edge (a double
+        # root Newton cannot settle on, and any further loss stops the load): refused like beyond it
+        beyond = demand > p_max * (1 - LIMIT_EDGE)
+        if beyond and has_vmin:
             to_drop.add(int(p))
-        if demand > p_max and not has_vmin:
+        if beyond and not has_vmin:
             name = bt.names[p]
             raise NoOperatingPointError(
                 f"load {name} asks for {demand:.4g} W, but the network can deliver at most {p_max:.4g} W at its "
-                f"terminals (V_th^2 / 4 R_th with V_th = {v_th:.4g} V, R_th = {r_th:.4g} Ohm): no operating point exists",
+                f"terminals (V_th^2 / 4 R_th with V_th = {v_th:.4g} V, R_th = {r_th:.4g} Ohm): "
+                + (
+                    "no operating point exists"
+                    if demand > p_max
+                    else f"it sits exactly at that limit, whose only operating point ({v_th / 2:.4g} V, half of V_th) is a knife "
+                    "edge that any further loss tips over: no stable operating point exists"
+                ),
                 element=name,
                 culprits=(name,),
                 hint="lower the demand, strengthen the supply (lower resistance, higher EMF), or give the load vmin= so it drops out as a real inverter would",
@@ -674,6 +689,17 @@ def _check_held_voltages(bt: BranchTable) -> set[int]:
                     )
             elif kind_name == "diode" and not np.isnan(cols["is"][j]):
                 vt = float(cols["n"][j]) * K_OVER_Q * (float(cols["temp"][j]) + 273.15)
+                held_current = float(cols["is"][j]) * np.expm1(min(v / vt, 700.0))
+                if v / vt <= 700.0 and held_current > HELD_CEILING:
+                    raise NoOperatingPointError(
+                        f"junction diode {name} is held at {v:.4g} V by {by}: its law would make it carry "
+                        f"{held_current:.3g} A, beyond any current a DC installation can carry ({HELD_CEILING:.0g} A); "
+                        "no physical operating point exists",
+                        element=name,
+                        culprits=(name, *held),
+                        hint="a junction diode forward-biased by an ideal source needs a series resistance (the source's r=, "
+                        "or a resistor or cable in the loop)",
+                    )
                 if v / vt > 700.0:
                     raise NumericalError(
                         f"junction diode {name} is held at {v:.4g} V by {by}: its current is * exp(v / (n Vt)) "

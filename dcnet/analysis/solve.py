@@ -28,12 +28,6 @@ __all__ = ["solve", "currents", "verify", "current_bounds", "condition_estimate"
 WARN_REL = 1e-9
 #: relative residual above which the result is refused
 REFUSE_REL = 1e-6
-#: the share of (largest conductance x largest potential) that counts in the current scale the
-#: residuals are judged against: that product bounds the round-off of a current computed as
-#: g·ΔV, which is a few machine epsilons of it in a sound solve, so a thousandth keeps a margin
-#: of about a million while a tiny resistance at a high voltage can no longer hide a residual
-#: that is large beside the currents that actually flow
-ROUNDOFF_SHARE = 1e-3
 #: worst-case relative error (condition number x machine epsilon) above which a result is
 #: refused, and above which it carries a warning
 COND_REFUSE = 1e-2
@@ -105,7 +99,8 @@ def node_check(a, b, n: int, pot, i, g, c, is_voltage, gamma: float, bounds=None
     For node k: ``residual_k = |sum of currents leaving k|``; ``current_k = sum |i_e|`` over the
     elements meeting at k; ``roundoff_k = gamma * sum (2 |g_e| V_max + |c_e|)`` over the same elements
     (a voltage-form branch counts its own |i_e| and the largest current, an unknown of the same
-    system; ``V_max`` the largest potential): the size of the
+    system; ``V_max`` the largest potential; plus the largest current once, the normwise share
+    of an LU solve's error that reaches every unknown): the size of the
     terms whose rounding makes the residual in a sound solve (the backward error of an LU solve
     is ``gamma`` times ``|L| |U| |x|``, which mixes the potentials of the whole system into a row, so
     a node near 0 V beside a 12 V one is allowed the round-off of 12 V). The judged figure is the residual beyond
@@ -134,7 +129,7 @@ def node_check(a, b, n: int, pot, i, g, c, is_voltage, gamma: float, bounds=None
     leaving = _leaving(a, b, n, i)
     residual = np.abs(leaving)
     current = _incident(a, b, n, ai)
-    roundoff = gamma * _incident(a, b, n, mag)
+    roundoff = gamma * (_incident(a, b, n, mag) + imax)
     if bounds is not None:
         # the round-off each current carries from the potentials it is computed from (the solve's
         # componentwise error bound, current_bounds): a node's residual can be as large as their sum
@@ -359,7 +354,7 @@ def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool
         pot, v, i = newton.potentials, newton.v, newton.i
         balance = verify(model, v, i, pot, size=system.size)
         _check_leak_floors(model, v, i, balance["_nodes"]["current"])
-        warnings += _second_operating_points(net, model, v)
+        warnings += _second_operating_points(net, model, v, system, factor)
         warnings += _dropped_out(model, newton.modes, v)
         sol = _finish(net, model, system, factor, x, pot, v, i, balance, warnings, refine=False, unsupplied=unsupplied)
         sol.newton_history = newton.history
@@ -724,35 +719,47 @@ def _dropped_out(model: BranchTable, modes: dict, v: np.ndarray) -> list[str]:
     return out
 
 
-def _second_operating_points(net, model: BranchTable, v: np.ndarray) -> list[str]:
-    """Constant-power loads have two operating points on a Thevenin source; say where the other is."""
+def _second_operating_points(net, model: BranchTable, v: np.ndarray, system=None, factor=None) -> list[str]:
+    """Constant-power loads have two operating points on a Thevenin source; say where the other is.
+
+    The Thevenin source each load sees (every other element at its final linear model) comes from
+    the final system's own factorisation in one solve with a column per load: the driving-point
+    resistance ``z`` with the load's companion conductance ``g`` in, then ``R_th = z / (1 - g z)``
+    with it taken out (Sherman-Morrison) and ``V_th = v + R_th i`` (its companion current ``i``).
+    """
     if "load" not in model.groups:
         return []
     pos, cols = model.groups["load"]
-    out = []
-    for k in np.flatnonzero(~np.isnan(cols["power"])):
-        p = pos[k]
-        if model.g[p] == 0 and model.c[p] == 0:
-            continue  # dropped out
-        g, c = model.g.copy(), model.c.copy()
-        g[p] = c[p] = 0.0
-        alone = dataclasses.replace(model, g=g, c=c)
+    ks = [k for k in np.flatnonzero(~np.isnan(cols["power"])) if not (model.g[pos[k]] == 0 and model.c[pos[k]] == 0)]
+    if not ks:
+        return []
+    if system is None or factor is None:
         from .islands import pinned_system
 
-        system = pinned_system(alone)
+        system = pinned_system(model)
         try:
-            x, factor = solve_system(system)
+            _, factor = solve_system(system)
         except NumericalError:
+            return []
+    U = np.zeros((system.size, len(ks)))
+    for j, k in enumerate(ks):
+        p = pos[k]
+        ra, rb = system.row_of_node[model.a[p]], system.row_of_node[model.b[p]]
+        if ra >= 0:
+            U[ra, j] += 1.0
+        if rb >= 0:
+            U[rb, j] -= 1.0
+    W = np.asarray(factor.solve(U)).reshape(system.size, len(ks))
+    out = []
+    for j, k in enumerate(ks):
+        p = pos[k]
+        w = system.potentials(W[:, j])
+        z = w[model.a[p]] - w[model.b[p]]
+        gp = model.g[p]
+        if not np.isfinite(z) or 1 - gp * z == 0:
             continue
-        pot, _, _ = currents(alone, system, x, g, c)
-        a, b = model.a[p], model.b[p]
-        rhs = np.zeros(system.size)
-        if system.row_of_node[a] >= 0:
-            rhs[system.row_of_node[a]] += 1.0
-        if system.row_of_node[b] >= 0:
-            rhs[system.row_of_node[b]] -= 1.0
-        w = system.potentials(factor.solve(rhs))
-        v_th, r_th = pot[a] - pot[b], w[a] - w[b]
+        r_th = z / (1 - gp * z)
+        v_th = v[p] + r_th * (gp * v[p] + model.c[p])
         if r_th <= 0 or v_th <= 0:
             continue
         low = v_th - v[p]  # the two roots of v^2 - V_th v + P R_th = 0 add up to V_th
