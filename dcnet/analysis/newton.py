@@ -180,6 +180,7 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
     else:
         pot, v, i = start
     state = None
+    restarted = False
     for it in range(1, max_iter + 1):
         modes_before = [grp.mode.copy() for grp in groups]
         model = _model(bt, groups, v, i, scale)
@@ -200,9 +201,23 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
             history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": changed})
             return False, state
         pot_new, _, i_model = currents(model, system, x_new, model.g, model.c)
-        if clamp is not None and np.isfinite(clamp[0]):
+        if clamp is not None and np.isfinite(clamp[0]) and np.abs(pot_new).max(initial=0.0) > clamp[0]:
             # no operating point lies beyond the physical bound (analysis/bound.py): an iterate
-            # that runs past it is diverging, never converging
+            # that runs past it is diverging, never converging. Once per phase, start again from
+            # everything on (a blocked diode whose far side runs away never sees its forward
+            # voltage); otherwise hold the iterate within the bound
+            if not restarted:
+                restarted = True
+                on = _all_on(bt, groups, scale)
+                if on is not None:
+                    sys_on = _assemble(on, shunt)
+                    x_on, _ = _try_solve(sys_on)
+                    if np.all(np.isfinite(x_on)):
+                        pot, v, i = currents(on, sys_on, x_on, on.g, on.c)
+                        pot = np.clip(pot, -clamp[0], clamp[0])
+                        v = pot[bt.a] - pot[bt.b]
+                        history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": -1})
+                        continue
             pot_new = np.clip(pot_new, -clamp[0], clamp[0])
         res_old = _residual(bt, model, v, _exact(bt, model, groups, v, np.where(model.is_voltage, i_model, model.g * v + model.c)))
         alpha = 1.0
