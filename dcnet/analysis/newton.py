@@ -34,6 +34,8 @@ __all__ = ["NewtonResult", "newton_solve", "VTOL", "ITOL", "MAX_ITER"]
 VTOL = 1e-9  # volts, plus the same relative to the largest potential
 ITOL = 1e-9  # relative to the current scale
 MAX_ITER = 60
+#: iterations in a row that switch some mode before Newton starts again from everything on
+CYCLE = 6
 #: a junction diode held by ideal branches at a voltage where its law gives more than this current
 #: (amperes) is refused: far beyond any fault current of a DC installation (common practice, no
 #: source), and where the companion model's conductance would swamp the rest of the matrix
@@ -181,6 +183,7 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
         pot, v, i = start
     state = None
     restarted = False
+    switching = 0
     for it in range(1, max_iter + 1):
         modes_before = [grp.mode.copy() for grp in groups]
         model = _model(bt, groups, v, i, scale)
@@ -201,7 +204,13 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
             history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": changed})
             return False, state
         pot_new, _, i_model = currents(model, system, x_new, model.g, model.c)
-        if clamp is not None and np.isfinite(clamp[0]) and np.abs(pot_new).max(initial=0.0) > clamp[0]:
+        switching = switching + 1 if changed else 0
+        beyond = clamp is not None and np.isfinite(clamp[0]) and np.abs(pot_new).max(initial=0.0) > clamp[0]
+        if switching >= CYCLE and not restarted and clamp is not None:
+            # modes that keep flipping (a limited source between holding and limiting while a
+            # blocked diode never sees its forward voltage): start again from everything on, once
+            beyond = True
+        if beyond:
             # no operating point lies beyond the physical bound (analysis/bound.py): an iterate
             # that runs past it is diverging, never converging. Once per phase, start again from
             # everything on (a blocked diode whose far side runs away never sees its forward
@@ -214,11 +223,16 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
                     x_on, _ = _try_solve(sys_on)
                     if np.all(np.isfinite(x_on)):
                         pot, v, i = currents(on, sys_on, x_on, on.g, on.c)
-                        pot = np.clip(pot, -clamp[0], clamp[0])
+                        if np.isfinite(clamp[0]):
+                            pot = np.clip(pot, -clamp[0], clamp[0])
+                        else:
+                            pot = np.clip(pot, -max(clamp[1], bt.max_emf), max(clamp[1], bt.max_emf))
                         v = pot[bt.a] - pot[bt.b]
+                        switching = 0
                         history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": -1})
                         continue
-            pot_new = np.clip(pot_new, -clamp[0], clamp[0])
+            if np.isfinite(clamp[0]):
+                pot_new = np.clip(pot_new, -clamp[0], clamp[0])
         res_old = _residual(bt, model, v, _exact(bt, model, groups, v, np.where(model.is_voltage, i_model, model.g * v + model.c)))
         alpha = 1.0
         # each node's residual judged as the self-check judges it (solve.node_check): against the
@@ -245,7 +259,8 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
 
 def _all_on(bt: BranchTable, groups: list[_Group], scale: float) -> BranchTable | None:
     """A starting model with everything on: piecewise-linear diodes conducting (their modes set so),
-    junction diodes linearised at 1 A forward, constant-power loads linearised at the largest EMF.
+    junction diodes linearised at 1 A forward, current-limited sources delivering their limit,
+    constant-power loads linearised at the largest EMF.
     None when there is nothing to turn on."""
     from ..kinds.diode import CONDUCTING
 
@@ -275,6 +290,13 @@ def _all_on(bt: BranchTable, groups: list[_Group], scale: float) -> BranchTable 
                 grp.prev = prev
             g[grp.pos], c[grp.pos], is_v[grp.pos] = gd, cd, False
             grp.mode = np.where(pwl, CONDUCTING, grp.mode)
+            any_on = True
+        elif grp.name == "source" and "imax" in cols:
+            # current-limited sources delivering their limit
+            from ..kinds.source import LIMIT
+
+            g[grp.pos], c[grp.pos], is_v[grp.pos] = 0.0, -cols["imax"] * scale, False
+            grp.mode = np.full(len(grp.pos), LIMIT)
             any_on = True
         elif grp.name == "load":
             P = cols["power"] * scale**2

@@ -278,3 +278,15 @@ def test_a_constant_power_load_behind_a_diode_does_not_run_away():
     # closed form: (E - drop - V) / (r + rD) = P / V, the upper root of V^2 - (E - drop) V + P (r + rD) = 0
     v = (11.4 + math.sqrt(11.4**2 - 4 * 50 * 0.11)) / 2
     assert sol.potential("q") == pytest.approx(v, rel=1e-9)
+
+
+def test_isolator_bus_with_a_current_limited_charger():
+    # before: the charger flipped between holding and limiting every iteration: "did not settle"
+    sol = dcnet.parse(_isolator("drop=0.3V r=5mOhm", "source PV bus 0 emf=14.4V r=10mOhm imax=20A")).solve()
+    # closed form: limited at 20 A (the bus stays below its knee 14.4 - 20 x 0.01 V), so
+    # (E - drop - V) / (RB + rD) + 20 = P / V, the upper root
+    r = RB + 0.005
+    a, b, c = 1.0 / r, -((E - 0.3) / r + 20.0), P
+    vbus = (-b + math.sqrt(b * b - 4 * a * c)) / (2 * a)
+    assert sol.potential("bus") == pytest.approx(vbus, rel=1e-9)
+    assert sol.current("PV") == pytest.approx(-20.0, rel=1e-12)
