@@ -290,3 +290,28 @@ def test_isolator_bus_with_a_current_limited_charger():
     vbus = (-b + math.sqrt(b * b - 4 * a * c)) / (2 * a)
     assert sol.potential("bus") == pytest.approx(vbus, rel=1e-9)
     assert sol.current("PV") == pytest.approx(-20.0, rel=1e-12)
+
+
+def test_the_elements_named_as_not_settled_are_those_at_the_nodes_that_do_not_balance():
+    # a settled solve of 300 identical branches with one branch node moved off its answer: the
+    # stopping rule's per-node judgement names that branch's diode first, not D0..D4 by position
+    from dcnet.analysis.branches import branch_table
+    from dcnet.analysis.newton import _groups, _raise_unsettled, newton_solve
+    from dcnet.errors import ConvergenceError
+
+    lines = ["cell BAT bus 0 emf=12V r=1mOhm"]
+    for k in range(300):
+        lines += [f"diode D{k} bus d{k} drop=0.7V r=1mOhm", f"resistor R{k} d{k} 0 r=1kOhm"]
+    bt = branch_table(dcnet.parse("\n".join(lines) + "\nground 0\n"))
+    res = newton_solve(bt)
+    groups = _groups(bt)
+    for grp in groups:
+        grp.mode = res.modes[grp.name]
+    pot = res.potentials.copy()
+    pot[bt.node_names.index("d177")] += 0.5
+    v = pot[bt.a] - pot[bt.b]
+    i = res.bt.g * v + res.bt.c  # the converged linear models' currents at the moved potentials
+    state = (res.bt, res.system, res.factor, res.x, pot, v, i)
+    with pytest.raises(ConvergenceError) as info:
+        _raise_unsettled(bt, groups, state, [{"phase": "newton", "iteration": 1, "step_V": 0.0, "residual_A": 0.0}])
+    assert info.value.culprits[0] == "D177"
