@@ -314,9 +314,13 @@ def solve_batch(bt: BranchTable, g, c, e, *, sparse: SparsePattern | None = None
     bounds = bounds_batch(bt, layout, W, x, z, pot, g, c, zero)
     bal = verify_batch(bt, pot, v, i, g, c, size=m, bounds=bounds)
 
-    def correction(rows):
+    def correction(rows, stacked=False):
+        rows = np.asarray(list(rows), dtype=np.int64)
+        if sparse is None and stacked:  # one stacked solve (for judging only: not applied to x)
+            r = z[rows] - np.einsum("sij,sj->si", A[rows], x[rows])
+            return np.linalg.solve(A[rows], r[:, :, None])[:, :, 0]
         out = np.zeros((len(rows), m))
-        for j, k in enumerate(rows):
+        for j, k in enumerate(rows):  # as a single solve refines: the same floats
             if sparse is None:
                 out[j] = np.linalg.solve(A[k], z[k] - A[k] @ x[k])
             else:
@@ -342,8 +346,7 @@ def solve_batch(bt: BranchTable, g, c, e, *, sparse: SparsePattern | None = None
         )
     # the backward error: one step of refinement must not move any sample's answer (solve._check_refinement)
     if m:
-        dx = correction(range(S))
-        row, N, vb = layout
+        dx = correction(range(S), stacked=True)
         _judge_refinement_batch(bt, layout, x, z, W, dx, g, bal["_nodes"], bounds)
     # unresolved currents from Kirchhoff's law, then currents within round-off are zero, as in a
     # single solve (solve.recover_currents, solve._finish)
