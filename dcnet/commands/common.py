@@ -115,11 +115,11 @@ class Output:
 
 def solve_one(path: str, options, text: str | None = None):
     """Load and solve one file (``text``: its content, when already read); returns (solution, error)."""
-    from ..language import load, parse
+    from ..language import load, parse, read_stdin
 
     try:
         if path == "-":
-            net = parse(sys.stdin.read() if text is None else text, "<stdin>", options)
+            net = parse(read_stdin(options) if text is None else text, "<stdin>", options)
         else:
             net = load(path, options, text=text)
         return net.solve(), None

@@ -59,17 +59,15 @@ def add_keep_options(p) -> None:
 
 def load_netlist(args):
     """The circuit of ``args.file`` (errors carry the file name)."""
-    import sys
-
     from ..errors import DcnetError, LimitError, Span
-    from ..language import load, parse
+    from ..language import load, parse, read_stdin
     from .common import options
 
     opts = options(args)
     path = args.file
     try:
         if path == "-":
-            return parse(sys.stdin.read(), "<stdin>", opts)
+            return parse(read_stdin(opts), "<stdin>", opts)
         return load(path, opts)
     except DcnetError as err:
         if err.span is None:

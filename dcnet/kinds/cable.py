@@ -36,7 +36,7 @@ from .base import Kind, Prop, admittance, check_samples, nonnegative, positive
 __all__ = ["awg_diameter", "awg_area", "conductor_resistance", "table_resistance", "KIND"]
 
 _METAL_ALIASES = {"cu": "copper", "al": "aluminium", "aluminum": "aluminium"}
-_GAUGE = re.compile(r"^\s*(\d+)(?:\s*/\s*0)?\s*$")
+_GAUGE = re.compile(r"^[ \t]*([0-9]+)(?:[ \t]*/[ \t]*0)?[ \t]*$")
 
 
 def parse_gauge(text: str) -> int:

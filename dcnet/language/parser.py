@@ -194,7 +194,7 @@ def _props(tokens) -> tuple[Prop, ...]:
     return tuple(out)
 
 
-_NUM = re.compile(r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+\-]?\d+)?")
+_NUM = re.compile(r"(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+\-]?[0-9]+)?")
 
 
 class _NumberError(Exception):
@@ -380,11 +380,12 @@ def _diagnose_line(src: str, column: int):
     bad = [w for w in head if not re.fullmatch(r"[A-Za-z0-9_][A-Za-z0-9_.+\-]*", w)]
     if bad:
         col = src.find(bad[0], indent)
+        odd = next((ch for ch in bad[0] if not ch.isascii() and lookalike_hint(ch)), None)
         return (
             f"'{bad[0]}' is not a valid name",
             col + 1,
             len(bad[0]),
-            "names start with a letter, digit or '_' and hold letters, digits, '_', '.', '+' and '-'",
+            (lookalike_hint(odd) + "; " if odd else "") + "names start with a letter, digit or '_' and hold ASCII letters, digits, '_', '.', '+' and '-'",
         )
     return None
 
@@ -403,6 +404,13 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int =
     if isinstance(exc, UnexpectedCharacters):
         ch = src[column - 1] if column - 1 < len(src) else ""
         found = f"the character {ch!r}"
+        if ch and not ch.isascii() and lookalike_hint(ch):
+            return SyntaxError(
+                f"found the character {ch!r} (U+{ord(ch):04X})",
+                span=Span(file, line + line_offset, column + col_offset, 1),
+                hint=lookalike_hint(ch),
+                source_line=src,
+            )
         expected = _describe_expected(set(exc.allowed or ()))
     elif isinstance(exc, UnexpectedToken):
         tok = exc.token
@@ -475,6 +483,75 @@ def _property_hint(src: str, column: int):
     return None
 
 
+# ------------------------------------------------------ look-alike characters
+#: non-ASCII characters the language reads: MICRO SIGN (µ, U+00B5), GREEK CAPITAL LETTER OMEGA
+#: (Ω, U+03A9), DEGREE SIGN (°, U+00B0), PLUS-MINUS SIGN (±, U+00B1) and SUPERSCRIPT TWO (²,
+#: U+00B2) at the end of a unit (mm²)
+ACCEPTED = "\u00b5\u03a9\u00b0\u00b1\u00b2"
+
+_LOOKALIKE_HINTS = {
+    "\u2126": "the OHM SIGN (U+2126) looks like Ω but is another character; write Ohm, or Ω (GREEK CAPITAL LETTER OMEGA, U+03A9)",
+    "\u03bc": "the GREEK SMALL LETTER MU (U+03BC) looks like µ but is another character; write u, or µ (MICRO SIGN, U+00B5), for micro",
+    "\u212a": "the KELVIN SIGN (U+212A) looks like K; temperatures are written in degC",
+    "\u2103": "write degC or °C (two characters) for degrees Celsius",
+    "\u00d7": "write * for a product",
+    "\u22c5": "write * for a product",
+    "\u00b7": "write * for a product",
+    "\u2219": "write * for a product",
+    "\u00f7": "write / for a quotient",
+    "\u2215": "write / for a quotient",
+    "\u2044": "write / for a quotient",
+    "\u2212": "the MINUS SIGN (U+2212) looks like '-' but is another character; write the ASCII '-'",
+    "\u2010": "write the ASCII '-' for a minus",
+    "\u2011": "write the ASCII '-' for a minus",
+    "\u2012": "write the ASCII '-' for a minus",
+    "\u2013": "the EN DASH (U+2013) looks like '-' but is another character; write the ASCII '-'",
+    "\u2014": "the EM DASH (U+2014) looks like '-' but is another character; write the ASCII '-'",
+    "\ufe63": "write the ASCII '-' for a minus",
+    "\u2032": "write ft for feet",
+    "\u2019": "quotes do not belong in a value",
+}
+
+
+def lookalike_hint(ch: str) -> str | None:
+    """A hint for a non-ASCII character that looks like one the language reads, or None."""
+    import unicodedata
+
+    if ch in _LOOKALIKE_HINTS:
+        return _LOOKALIKE_HINTS[ch]
+    name = unicodedata.name(ch, f"U+{ord(ch):04X}")
+    cat = unicodedata.category(ch)
+    if cat == "Nd":
+        return f"'{ch}' ({name}) is not read as a digit; write the ASCII digit {unicodedata.digit(ch)}"
+    if cat in ("Zs", "Cf") or ch in "\u00a0\u2060\ufeff":
+        return f"{name} (U+{ord(ch):04X}) is an unusual or invisible space; write an ordinary space, or nothing"
+    folded = unicodedata.normalize("NFKC", ch)
+    if cat == "No":
+        return f"'{ch}' ({name}) is not read as a number; write ASCII digits (0-9), e.g. 0.5; powers are written with ^, e.g. 10^2"
+    if folded != ch and folded.isascii():
+        return f"'{ch}' ({name}) looks like '{folded}' but is another character; write '{folded}'"
+    return None
+
+
+def scan_lookalikes(raw: str, span: Span, source_line: str | None) -> None:
+    """Refuse a value holding a character that only looks like one the language reads (a
+    full-width or other script's digit, the OHM SIGN, a minus sign, a no-break space ...)."""
+    if raw.isascii():
+        return
+    for k, ch in enumerate(raw):
+        if ch.isascii() or (ch in ACCEPTED and (ch != "\u00b2" or (k and raw[k - 1].isalpha()))):
+            continue
+        import unicodedata
+
+        name = unicodedata.name(ch, "unnamed")
+        raise SyntaxError(
+            f"found the character {ch!r} (U+{ord(ch):04X} {name}) in a value",
+            span=Span(span.file, span.line, span.column + k, 1),
+            hint=lookalike_hint(ch) or "values are written with ASCII digits, letters and + - * / ^ ( ); units may use µ, Ω, ° and ²",
+            source_line=source_line,
+        )
+
+
 # ------------------------------------------------------------------ entry
 def parse_statements(text: str, file: str = "<text>") -> list[Statement]:
     """Parse a whole circuit text into statements (values kept raw)."""
@@ -501,6 +578,7 @@ def parse_value(raw: str, span: Span, source_line: str | None = None):
 
     ``span`` is where the value starts in its file; error columns are mapped into it.
     """
+    scan_lookalikes(raw, span, source_line)
     try:
         return _parse_value_cached(raw)
     except UnexpectedInput as exc:
