@@ -28,7 +28,7 @@ from ..errors import (
     ValueRangeError,
 )
 from ..kinds import KINDS
-from ..kinds.base import Kind
+from ..kinds.base import Kind, check_finished
 from ..netlist import Element, Limit, Netlist
 from ..units import CURRENT, DIMENSIONLESS, VOLTAGE, Quantity, dim_name, lookup_unit
 from .expressions import ExpressionProblem, evaluate, names_in
@@ -561,6 +561,9 @@ def _resolve_prop(st: _State, kind: Kind, p: Prop, file: str, owner: str) -> Any
         try:
             spec.check(p.key, q.value)
         except ValueRangeError as err:
+            written = p.raw.strip()
+            if not written.startswith(f"{q.value:g}") and written not in err.message:  # the check words SI numbers
+                err.message += f" (written {written})"
             err.with_span(span)
             raise
     return q.value
@@ -688,8 +691,12 @@ def element_values(st: _State, kind: Kind, props, file: str, name: str, name_spa
             if spec.default is not None:
                 values[spec.name] = spec.default
     try:
-        return kind.finish(values)
+        given = set(values)
+        return check_finished(kind.finish(values), given)
     except DcnetError as err:
+        at = next((p for p in props if p.key == getattr(err, "prop", None)), None)
+        if at is not None:  # the kind says which property is wrong: point at its value
+            err.with_span(_value_span(file, at), _src(st, file, at.line))
         err.with_span(name_span, _src(st, file, name_span.line))
         if err.element is None:
             err.element = name

@@ -20,6 +20,7 @@ from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
 
 from ..errors import DcnetError, InputError, Span, SyntaxError, UnknownNameError, ValueRangeError
 from ..units import Quantity, lookup_unit, suggest_unit
+from .expressions import MAX_MAGNITUDE, MIN_MAGNITUDE
 
 __all__ = [
     "Prop",
@@ -194,12 +195,13 @@ def _props(tokens) -> tuple[Prop, ...]:
     return tuple(out)
 
 
+_NONZERO_DIGIT = re.compile(r"[1-9]")
 _NUM = re.compile(r"(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+\-]?[0-9]+)?")
 
 
 class _NumberError(Exception):
-    def __init__(self, text: str):
-        self.text = text
+    def __init__(self, text: str, small: bool = False):
+        self.text, self.small = text, small
 
 
 class _UnitError(Exception):
@@ -210,8 +212,11 @@ class _UnitError(Exception):
 def _quantity(text: str) -> Quantity:
     m = _NUM.match(text)
     number = float(m.group(0))
-    if not math.isfinite(number) or number > 1e100:
+    if not math.isfinite(number) or number > MAX_MAGNITUDE:
         raise _NumberError(m.group(0))
+    nonzero = number != 0 or bool(_NONZERO_DIGIT.search(m.group(0).partition("e")[0].partition("E")[0]))
+    if nonzero and number < MIN_MAGNITUDE:  # also 1e-400, which reads as zero
+        raise _NumberError(m.group(0), small=True)
     rest = text[m.end():]
     unit = rest.strip()
     if not unit:
@@ -219,7 +224,12 @@ def _quantity(text: str) -> Quantity:
     q = lookup_unit(unit)
     if q is None:
         raise _UnitError(unit, len(text) - len(unit))
-    return Quantity(number * q.value, q.dim)
+    value = number * q.value
+    if not math.isfinite(value) or value > MAX_MAGNITUDE:
+        raise _NumberError(text)
+    if nonzero and value < MIN_MAGNITUDE:
+        raise _NumberError(text, small=True)
+    return Quantity(value, q.dim)
 
 
 @lru_cache(maxsize=1)
@@ -596,7 +606,7 @@ def _value_error(orig, raw: str, span: Span, source_line: str | None) -> DcnetEr
     if isinstance(orig, _NumberError):
         col = raw.find(orig.text)
         return ValueRangeError(
-            f"the number {orig.text} is too large to be a physical quantity",
+            f"the number {orig.text} is too {'small' if orig.small else 'large'} to be a physical quantity",
             span=Span(span.file, span.line, span.column + max(col, 0), len(orig.text)),
             source_line=source_line,
         )
