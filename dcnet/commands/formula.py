@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import json
 
-from .common import EXIT_OK, Output, add_output_options, check_outputs
+from .common import EXIT_OK, Output, add_output_options, check_outputs, seconds_number
 
 CHECK_NOTE = "every formula was checked against the numeric solve at the file's values before it was shown"
 
@@ -50,7 +50,7 @@ def add_keep_options(p) -> None:
     g.add_argument("--keep-all", action="store_true", help="keep every let value the circuit's elements use")
     p.add_argument(
         "--time-budget",
-        type=float,
+        type=seconds_number(),
         default=DEFAULT_TIME_BUDGET,
         metavar="SECONDS",
         help=f"stop a symbolic solve that takes longer (default {DEFAULT_TIME_BUDGET:g}; 0 = no budget)",

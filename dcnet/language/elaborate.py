@@ -197,7 +197,7 @@ def _read_bounded(fh, limit: int, name: str, span: Span | None) -> bytes:
     while True:
         chunk = fh.read(min(_CHUNK, limit + 1 - total))
         if not chunk:
-            return b"".join(parts)
+            return (b"" if not parts or isinstance(parts[0], bytes) else "").join(parts)
         parts.append(chunk)
         total += len(chunk)
         if total > limit:

@@ -249,7 +249,9 @@ def _finite_array(v, node, *operands):
     _refuse_where(~np.isfinite(arr) | (np.abs(arr) > MAX_MAGNITUDE), ValueRangeError, "the value overflows (too large to be a physical quantity)", _column(node))
     tiny = (arr != 0) & (np.abs(arr) < MIN_MAGNITUDE)
     if operands:
-        nonzero = np.logical_and.reduce([np.asarray(x) != 0 for x in operands])
+        nonzero = np.ones(arr.shape, dtype=bool)
+        for x in operands:
+            nonzero = nonzero & (np.asarray(x) != 0)
         tiny = tiny | ((arr == 0) & nonzero)
     _refuse_where(tiny, ValueRangeError, _UNDERFLOW, _column(node))
     return v
