@@ -956,6 +956,12 @@ def _phase(st: _State, s: Statement, file: str) -> None:
                 raise DimensionError(f"{p.key} of phase {label} must be {dim_name(spec)}, got {dim_name(q.dim)}", span=span)
             if p.key in ("for", "max", "step") and q.value <= 0:
                 raise ValueRangeError(f"{p.key} must be greater than zero, got {q.value:g} s", span=span)
+            if p.key in ("soc_above", "soc_below") and not 0.0 <= q.value <= 1.0:
+                raise ValueRangeError(
+                    f"{p.key} must lie between 0% and 100%, got {q.value * 100:g}%",
+                    span=span,
+                    hint="a state of charge outside 0..100 % is never reached: the phase would end at once or never",
+                )
             values[p.key] = q.value
     try:
         st.net.phases.append(Phase.from_values(label, values, Span(file, s.line, s.column, len(label))))
@@ -983,7 +989,12 @@ _HANDLERS.update(
 def _finish(st: _State) -> None:
     net = st.net
     for ph in net.phases:
-        ph.check_names(net)
+        try:
+            ph.check_names(net)
+        except DcnetError as err:
+            if err.span is not None and err.source_line is None:
+                err.source_line = _src(st, err.span.file, err.span.line)
+            raise
     if not net.elements:
         raise InputError(
             "the circuit has no elements",

@@ -105,6 +105,9 @@ REFUSALS = [
     (RES + "limit voltage min=14V max=12V of=R1\n", E.ValueRangeError, 3, 19, "above its max", None),
     (RES + "limit current of=R1\n", E.InputError, 3, 7, "needs max= or min=", None),
     ("limit current max=5A of=R9\n" + RES, E.UnknownNameError, 1, 25, "not an element", "elements: B1, R1"),
+    # --- phase conditions that can never be met, or met at once
+    (CELL + "load L a gnd r=1Ohm\nphase p on=L soc_below=150% max=1h\n", E.ValueRangeError, 3, 24, "between 0% and 100%", "never reached"),
+    (CELL + "load L a gnd r=1Ohm\nphase p on=L soc_above=-5% max=1h\n", E.ValueRangeError, 3, 24, "between 0% and 100%", None),
     # --- an include path that no file can have
     (RES + 'include "a\x00b.dcn"\n', E.IncludeError, 3, 9, "control character '\\x00'", None),
 ]
@@ -137,6 +140,12 @@ def test_command_line_exit_2_with_location_and_no_traceback(k, tmp_path, capsys)
     assert f"c.dcn:{line}:{col}: " in err
     assert "Traceback" not in err and "RuntimeWarning" not in err
     assert not [w for w in caught if issubclass(w.category, RuntimeWarning)]
+
+
+def test_a_phase_naming_nothing_echoes_its_line():
+    with pytest.raises(E.UnknownNameError) as info:
+        dcnet.parse(CELL + "load L a gnd r=1Ohm\nphase p on=L,NOPE for=1h\n")
+    assert info.value.source_line == "phase p on=L,NOPE for=1h"
 
 
 def test_subnormal_values_never_reach_numpy(tmp_path, capfd):
