@@ -95,6 +95,12 @@ def test_standard_input_within_the_limit_is_read_whole(monkeypatch):
         read_stdin(Options(max_file_bytes=len(data) - 1), io.BytesIO(data))
 
 
+def test_closed_standard_input(monkeypatch, capsys):
+    monkeypatch.setattr(sys, "stdin", None)
+    code, out, err = run(capsys, "solve", "-")
+    assert code == 2 and "standard input is closed" in err
+
+
 def test_standard_input_that_is_not_utf8_is_refused():
     with pytest.raises(E.InputError, match="not UTF-8"):
         read_stdin(Options(), io.BytesIO(b"cell A a gnd emf=12V r=1Ohm\n# caf\xe9\n"))

@@ -228,6 +228,8 @@ def read_stdin(options: Options | None = None, stream=None) -> str:
 
     options = options or Options()
     fh = stream if stream is not None else sys.stdin
+    if fh is None:  # started with standard input closed
+        raise InputError("standard input is closed", span=Span("<stdin>"), hint="give the circuit file's name, or pipe it in")
     fh = getattr(fh, "buffer", fh)
     try:
         data = _read_bounded(fh, options.max_file_bytes, "standard input", Span("<stdin>"))
