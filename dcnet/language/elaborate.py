@@ -32,7 +32,7 @@ from ..kinds.base import Kind, check_finished
 from ..netlist import Element, Limit, Netlist
 from ..units import CURRENT, DIMENSIONLESS, VOLTAGE, Quantity, dim_name, lookup_unit
 from .expressions import ExpressionProblem, evaluate, names_in
-from .parser import KEYWORDS, Prop, Statement, parse_statements, parse_value, scan_lookalikes, suggest
+from .parser import KEYWORDS, Prop, Statement, lookalike_hint, parse_statements, parse_value, scan_lookalikes, suggest
 
 __all__ = ["Options", "load", "parse", "read_stdin", "LIMIT_RULES"]
 
@@ -925,11 +925,12 @@ def _known(st: _State, what: str, names, table, span: Span, spans=None, also=Non
         pool = list(table) + (list(also) if also is not None else [])
         near = suggest(name, pool) if len(pool) <= 100_000 else None
         known = ", ".join(list(table)[:8]) + (" ..." if len(table) > 8 else "")
+        odd = next((lookalike_hint(ch) for ch in name if not ch.isascii() and lookalike_hint(ch)), None)
         raise UnknownNameError(
             f"limit names '{name}', which is not {'an' if what[0] in 'ae' else 'a'} {what} of the circuit",
             span=span,
             source_line=_src(st, span.file, span.line),
-            hint=f"did you mean '{near}'?" if near else (f"{what}s: {known}" if table else f"the circuit has no {what}s"),
+            hint=(odd + "; " if odd else "") + (f"did you mean '{near}'?" if near else (f"{what}s: {known}" if table else f"the circuit has no {what}s")),
         )
 
 
