@@ -549,6 +549,8 @@ def scan_lookalikes(raw: str, span: Span, source_line: str | None) -> None:
     if raw.isascii():
         return
     for k, ch in enumerate(raw):
+        if ch.isascii() and not ch.isprintable() and ch != "\t":
+            return  # a control character comes first: the value's own error names the whole word
         if ch.isascii() or (ch in ACCEPTED and (ch != "\u00b2" or (k and raw[k - 1].isalpha()))):
             continue
         import unicodedata
