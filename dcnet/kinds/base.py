@@ -23,6 +23,7 @@ and sympy object arrays.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
@@ -41,10 +42,12 @@ ABSOLUTE_ZERO_C = -273.15
 
 
 def finite(name: str, x: float) -> None:
-    if not np.isfinite(x):
+    m = abs(x)
+    if MIN_MAGNITUDE <= m <= MAX_MAGNITUDE or m == 0:  # the common case first (NaN fails both)
+        return
+    if not math.isfinite(x):
         raise ValueRangeError(f"{name}={x} is not a finite number")
-    if abs(x) > MAX_MAGNITUDE or (x != 0 and abs(x) < MIN_MAGNITUDE):
-        raise ValueRangeError(f"{name}={x:g} is too {'large' if abs(x) > 1 else 'small'} to be a physical quantity")
+    raise ValueRangeError(f"{name}={x:g} is too {'large' if m > 1 else 'small'} to be a physical quantity")
 
 
 def above_absolute_zero(name: str, x: float) -> None:
@@ -58,7 +61,10 @@ def check_finished(values: dict[str, Any], given=()) -> dict[str, Any]:
     """Every number an element ends with (given, or derived by its kind's ``finish``) is finite
     and of physical size; a derived resistance ``r`` is greater than zero. Returns ``values``."""
     for key, x in values.items():
-        if isinstance(x, (float, int)) and not isinstance(x, bool):
+        if type(x) is float or (isinstance(x, (float, int)) and not isinstance(x, bool)):
+            m = abs(x)
+            if (MIN_MAGNITUDE <= m <= MAX_MAGNITUDE or m == 0) and (key != "r" or x > 0 or key in given):
+                continue  # the common case, without a call
             derived = key not in given
             try:
                 finite(key, float(x))

@@ -85,8 +85,10 @@ def zero_resistance_temp(metal: str) -> float:
 def check_temperature(metal: str, temp, where: str = "") -> None:
     """Refuse conductor temperatures (a number, or an array of samples) where the linear law
     gives no resistance (at or below its zero) or the metal is molten."""
-    t = np.asarray(temp, dtype=float)
     low, melt = zero_resistance_temp(metal), MELTING_C[metal]
+    if type(temp) is float and low < temp < melt:
+        return  # one element's temperature, the common case
+    t = np.asarray(temp, dtype=float)
     bad = np.flatnonzero((t <= low) | (t >= melt))
     if not len(bad):
         return
