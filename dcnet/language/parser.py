@@ -459,6 +459,11 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int =
     elif col_offset and isinstance(exc, UnexpectedToken) and exc.token.type in ("NAME", "QUANTITY", "IDENT", "ELEMHEAD"):
         message = f"found {found} after a complete value"
         hint = f"is an '=' missing ({exc.token}=...)? or an operator (* + - /) between two values?"
+    word = src[column - 1 :].split()[0] if src[column - 1 :].split() else ""
+    odd = next((ch for ch in word if not ch.isascii() and lookalike_hint(ch)), None)
+    if odd is not None:  # e.g. a full-width '=' makes the property unreadable: say which character
+        hint = lookalike_hint(odd)
+        message += f" (it holds the character {odd!r}, U+{ord(odd):04X})"
     span = Span(file, line + line_offset, column + col_offset, 1)
     return SyntaxError(message, span=span, hint=hint, source_line=src)
 
@@ -504,6 +509,8 @@ _LOOKALIKE_HINTS = {
     "\u03bc": "the GREEK SMALL LETTER MU (U+03BC) looks like µ but is another character; write u, or µ (MICRO SIGN, U+00B5), for micro",
     "\u212a": "the KELVIN SIGN (U+212A) looks like K; temperatures are written in degC",
     "\u2103": "write degC or °C (two characters) for degrees Celsius",
+    "\u00ba": "the MASCULINE ORDINAL INDICATOR (º) looks like the degree sign; write degC, or °C with the DEGREE SIGN (U+00B0)",
+    "\u02da": "the RING ABOVE (˚) looks like the degree sign; write degC, or °C with the DEGREE SIGN (U+00B0)",
     "\u00d7": "write * for a product",
     "\u22c5": "write * for a product",
     "\u00b7": "write * for a product",

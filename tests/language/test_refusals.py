@@ -90,6 +90,9 @@ REFUSALS = [
     (CELL + "resistor R\uff11 a gnd r=5Ohm\n", E.SyntaxError, 2, 10, "is not a valid name", "ASCII digit 1"),
     (CELL + "cable C a gnd length=2m gauge=\uff11\uff10\n", E.SyntaxError, 2, 31, "FULLWIDTH DIGIT ONE", "ASCII digit 1"),
     ("let x = \uff15 Ohm\n" + RES, E.SyntaxError, 1, 9, "FULLWIDTH DIGIT FIVE", "ASCII digit 5"),
+    (CELL + "cable C a gnd length=2m size=10mm2 temp=30\u00baC\n", E.SyntaxError, 2, 43, "MASCULINE ORDINAL INDICATOR", "DEGREE SIGN"),
+    (CELL + "resistor R a gnd r\uff1d5Ohm\n", E.SyntaxError, 2, 18, "U+FF1D", "write '='"),
+    (CELL + "resistor R a gnd r=1\u2009000Ohm\n", E.SyntaxError, 2, 21, "U+2009", "ordinary space"),
     # --- limits that name nothing, or something that is not there
     (RES + "limit imbalance max=10% among=,\n", E.InputError, 3, 31, "names nothing", None),
     (RES + "limit imbalance max=10% among=B1,X\n", E.UnknownNameError, 3, 34, "'X', which is not an element", None),
