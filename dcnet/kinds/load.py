@@ -13,7 +13,7 @@ import numpy as np
 
 from ..errors import InputError, ValueRangeError
 from ..units import CURRENT, POWER, RESISTANCE, VOLTAGE
-from .base import Kind, Prop, admittance, finite, positive, present, safe_inverse
+from .base import Kind, Prop, admittance, finite, nonnegative, positive, present, safe_inverse
 
 ON, DROPPED = 0, 1
 
@@ -86,7 +86,7 @@ KIND = Load(
         "r": Prop("r", RESISTANCE, check=positive, doc="resistance"),
         "current": Prop("current", CURRENT, check=drawn_current, doc="constant current drawn (first node to second)"),
         "power": Prop("power", POWER, check=drawn_power, doc="constant power drawn"),
-        "vmin": Prop("vmin", VOLTAGE, doc="lowest working voltage (a constant-power load drops out below it)"),
+        "vmin": Prop("vmin", VOLTAGE, check=nonnegative, doc="lowest working voltage (a constant-power load drops out below it)"),
         "critical": Prop("critical", form="word", words=("yes", "no"), default="no", doc="a critical load (3 % drop limit instead of 10 %)"),
     },
     columns=("r", "current", "power", "vmin"),

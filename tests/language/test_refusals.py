@@ -59,6 +59,7 @@ REFUSALS = [
     (CELL + "load L a gnd current=-3A\n", E.ValueRangeError, 2, 22, "must not be negative", "supply"),
     (CELL + "load L a gnd power=-30W\n", E.ValueRangeError, 2, 20, "greater than zero", "source"),
     (CELL + "let i = 2A - 5A\nload L a gnd current=i\n", E.ValueRangeError, 3, 22, "must not be negative", "supply"),
+    (CELL + "load L a gnd power=30W vmin=-10V\n", E.ValueRangeError, 2, 29, "must not be negative", None),
     # --- subnormal, underflowing and overflowing numbers, literal or computed
     (CELL + "resistor R a gnd r=1e-320Ohm\n", E.ValueRangeError, 2, 20, "1e-320 is too small", None),
     (CELL + "resistor R a gnd r=1e-310 Ohm\n", E.ValueRangeError, 2, 20, "too small", None),
