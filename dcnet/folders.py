@@ -79,8 +79,6 @@ def _read_for_cluster(path: str, options):
 
 def run_files(files: list[str], options, *, mode: str = "solve", show=(), result: bool = False, jobs=None, cluster=None, progress=True) -> list[dict]:
     """Records of every file, in order, from the runner that ``jobs``/``cluster`` select."""
-    import sys
-
     from .parallel import Progress, make_runner
 
     items: list = []

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import sys
 
 from ..errors import DimensionError, InputError, Span
 from .common import (

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import sys
-
 from .common import (
     EXIT_BAD_INPUT,
     Output,
