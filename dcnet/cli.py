@@ -50,8 +50,16 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return EXIT_BAD_INPUT
+    from .floating import as_error, is_floating_point_warning, refused
+
     try:
-        return args.run(args)
+        try:
+            with refused():  # numpy's floating-point warnings become dcnet's error (dcnet/floating.py)
+                return args.run(args)
+        except RuntimeWarning as exc:
+            if not is_floating_point_warning(exc):
+                raise
+            raise as_error(exc) from None
     except DcnetError as err:
         print(f"dcnet: {err.render()}", file=sys.stderr)
         return EXIT_BAD_INPUT

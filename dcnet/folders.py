@@ -79,15 +79,19 @@ def _read_for_cluster(path: str, options):
 
 def run_files(files: list[str], options, *, mode: str = "solve", show=(), result: bool = False, jobs=None, cluster=None, progress=True) -> list[dict]:
     """Records of every file, in order, from the runner that ``jobs``/``cluster`` select."""
-    import sys
-
     from .parallel import Progress, make_runner
 
     items: list = []
     ready: dict[int, dict] = {}
     for k, path in enumerate(files):
         if path == "-":
-            items.append(("-", sys.stdin.read()))
+            from .errors import DcnetError
+            from .language import read_stdin
+
+            try:
+                items.append(("-", read_stdin(options)))
+            except DcnetError as err:  # only this input is refused
+                ready[k] = {"file": path, "status": "refused", "error": str(err), "message": err.render(), "warnings": [], "read": [path]}
         elif cluster:
             got = _read_for_cluster(path, options)
             if isinstance(got, dict):

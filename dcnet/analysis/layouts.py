@@ -28,9 +28,9 @@ def compare_taps(path: str, options=None, only: str | None = None) -> list[dict]
     options = options or Options()
     text = None
     if path == "-":
-        import sys
+        from ..language import read_stdin
 
-        text = sys.stdin.read()
+        text = read_stdin(options)
 
     def build(tap):
         opts = dataclasses.replace(options, tap_override=tap)

@@ -12,6 +12,7 @@ from typing import Any
 
 import numpy as np
 
+from ..errors import UnknownNameError
 from ..kinds import KINDS
 from ..netlist import Netlist
 from .branches import BranchTable
@@ -81,11 +82,9 @@ def string_currents(bank: dict, current, bound) -> tuple[np.ndarray, np.ndarray]
     return np.column_stack(cur), np.column_stack(bnd)
 
 
-class QuantityError(KeyError):
-    """An asked-for quantity names no element or node."""
-
-    def __str__(self) -> str:
-        return str(self.args[0])
+class QuantityError(UnknownNameError, KeyError):
+    """An asked-for quantity names no element or node (an input error: it is a
+    :class:`~dcnet.errors.DcnetError`, and a ``KeyError`` for lookups that expect one)."""
 
 
 class Solution:

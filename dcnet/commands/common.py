@@ -29,6 +29,44 @@ def options(args):
     )
 
 
+def whole_number(low: int, high: int | None = None, what: str = "a whole number"):
+    """An argparse ``type`` for a whole number in ``low..high`` (ASCII digits only): a bad value is
+    argparse's own error (the usage line, ``argument --x: ...``, exit 2), never a traceback."""
+
+    def parse(text: str) -> int:
+        t = text.strip().replace("_", "").replace(",", "")
+        if not (t.isascii() and (t.isdigit() or (t[:1] in "+-" and t[1:].isdigit()))):
+            raise argparse.ArgumentTypeError(f"'{text}' is not {what} (write ASCII digits, e.g. {max(low, 1)})")
+        n = int(t)
+        if n < low or (high is not None and n > high):
+            span = f"from {low:,} to {high:,}" if high is not None else f"at least {low:,}"
+            raise argparse.ArgumentTypeError(f"{text} is outside the range it takes: {span}")
+        return n
+
+    parse.__name__ = what
+    return parse
+
+
+def seconds_number(allow_zero: bool = True, high: float = 1e6):
+    """An argparse ``type`` for a finite, non-negative number of seconds up to ``high`` (0 allowed
+    when ``allow_zero``; a timer cannot be set much beyond the platform's time range)."""
+
+    def parse(text: str) -> float:
+        import math
+
+        try:
+            x = float(text) if text.strip().isascii() else math.nan
+        except ValueError:
+            x = math.nan
+        if not math.isfinite(x) or x < 0 or (x == 0 and not allow_zero) or x > high:
+            low = "0" if allow_zero else "above 0"
+            raise argparse.ArgumentTypeError(f"'{text}' is not a number of seconds from {low} to {high:,.0f}")
+        return x
+
+    parse.__name__ = "a number of seconds"
+    return parse
+
+
 def add_fault_option(p: argparse.ArgumentParser) -> None:
     """``--fault`` of the studies (sweep, spread): the per-sample fault-current check."""
     p.add_argument(
@@ -42,11 +80,11 @@ def add_input_options(p: argparse.ArgumentParser) -> None:
 
     d = Options()
     g = p.add_argument_group("limits on input (raise them only for files you trust)")
-    g.add_argument("--max-file-bytes", type=int, default=d.max_file_bytes, metavar="N", help=f"largest circuit file read (default {d.max_file_bytes:,})")
-    g.add_argument("--max-elements", type=int, default=d.max_elements, metavar="N", help=f"most elements in one circuit (default {d.max_elements:,})")
-    g.add_argument("--max-include-depth", type=int, default=d.max_include_depth, metavar="N", help=f"deepest nesting of includes (default {d.max_include_depth})")
-    g.add_argument("--max-expression-depth", type=int, default=d.max_expression_depth, metavar="N", help=f"deepest nesting of a value expression (default {d.max_expression_depth})")
-    g.add_argument("--max-block-depth", type=int, default=d.max_block_depth, metavar="N", help=f"deepest nesting of block instances (default {d.max_block_depth})")
+    g.add_argument("--max-file-bytes", type=whole_number(1), default=d.max_file_bytes, metavar="N", help=f"largest circuit file read, standard input and devices included (default {d.max_file_bytes:,})")
+    g.add_argument("--max-elements", type=whole_number(1), default=d.max_elements, metavar="N", help=f"most elements in one circuit (default {d.max_elements:,})")
+    g.add_argument("--max-include-depth", type=whole_number(0), default=d.max_include_depth, metavar="N", help=f"deepest nesting of includes (default {d.max_include_depth})")
+    g.add_argument("--max-expression-depth", type=whole_number(1), default=d.max_expression_depth, metavar="N", help=f"deepest nesting of a value expression (default {d.max_expression_depth})")
+    g.add_argument("--max-block-depth", type=whole_number(0), default=d.max_block_depth, metavar="N", help=f"deepest nesting of block instances (default {d.max_block_depth})")
     g.add_argument("--allow-outside-includes", action="store_true", help="follow includes that leave the circuit file's folder")
 
 
@@ -115,14 +153,22 @@ class Output:
 
 def solve_one(path: str, options, text: str | None = None):
     """Load and solve one file (``text``: its content, when already read); returns (solution, error)."""
-    from ..language import load, parse
+    from ..language import load, parse, read_stdin
+
+    from ..floating import as_error, is_floating_point_warning, refused
 
     try:
-        if path == "-":
-            net = parse(sys.stdin.read() if text is None else text, "<stdin>", options)
-        else:
-            net = load(path, options, text=text)
-        return net.solve(), None
+        try:
+            with refused():  # also in folder-run workers: numpy's warnings become an error of this file
+                if path == "-":
+                    net = parse(read_stdin(options) if text is None else text, "<stdin>", options)
+                else:
+                    net = load(path, options, text=text)
+                return net.solve(), None
+        except RuntimeWarning as exc:
+            if not is_floating_point_warning(exc):
+                raise
+            raise as_error(exc, "<stdin>" if path == "-" else path) from None
     except DcnetError as err:
         if err.span is None:
             from ..errors import Span

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import sys
 
 from ..errors import DimensionError, InputError, Span
 from .common import (
@@ -49,12 +48,12 @@ def _seconds(text: str) -> float:
 
 def run(args) -> int:
     from ..analysis.cycle import run as run_cycle
-    from ..language import load, parse
+    from ..language import load, parse, read_stdin
 
     opts = options(args)
     check_outputs(args, [args.file])
     step = _seconds(args.step)
-    net = parse(sys.stdin.read(), "<stdin>", opts) if args.file == "-" else load(args.file, opts)
+    net = parse(read_stdin(opts), "<stdin>", opts) if args.file == "-" else load(args.file, opts)
     result = run_cycle(net, step=step, force_refactor=args.refactor, progress=True)
     inputs = net.files
     if args.series:

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import json
 
-from .common import EXIT_OK, Output, add_output_options, check_outputs
+from .common import EXIT_OK, Output, add_output_options, check_outputs, seconds_number
 
 CHECK_NOTE = "every formula was checked against the numeric solve at the file's values before it was shown"
 
@@ -50,7 +50,7 @@ def add_keep_options(p) -> None:
     g.add_argument("--keep-all", action="store_true", help="keep every let value the circuit's elements use")
     p.add_argument(
         "--time-budget",
-        type=float,
+        type=seconds_number(),
         default=DEFAULT_TIME_BUDGET,
         metavar="SECONDS",
         help=f"stop a symbolic solve that takes longer (default {DEFAULT_TIME_BUDGET:g}; 0 = no budget)",
@@ -59,17 +59,15 @@ def add_keep_options(p) -> None:
 
 def load_netlist(args):
     """The circuit of ``args.file`` (errors carry the file name)."""
-    import sys
-
     from ..errors import DcnetError, LimitError, Span
-    from ..language import load, parse
+    from ..language import load, parse, read_stdin
     from .common import options
 
     opts = options(args)
     path = args.file
     try:
         if path == "-":
-            return parse(sys.stdin.read(), "<stdin>", opts)
+            return parse(read_stdin(opts), "<stdin>", opts)
         return load(path, opts)
     except DcnetError as err:
         if err.span is None:

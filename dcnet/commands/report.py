@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import sys
-
 from .common import (
     EXIT_BAD_INPUT,
     Output,
@@ -57,7 +55,7 @@ def _format(args) -> str:
 
 def run(args) -> int:
     from ..errors import InputError
-    from ..language import load, parse
+    from ..language import load, parse, read_stdin
 
     fmt = _format(args)
     if fmt == "png" and not args.output:
@@ -65,7 +63,7 @@ def run(args) -> int:
     opts = options(args)
     check_outputs(args, [args.file])
     if args.file == "-":
-        text = sys.stdin.read()
+        text = read_stdin(opts)
         net = parse(text, "<stdin>", opts)
         sources = [("<stdin>", text)]
     else:

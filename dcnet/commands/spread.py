@@ -15,6 +15,7 @@ from .common import (
     check_outputs,
     options,
     say,
+    whole_number,
     write_file,
 )
 
@@ -26,8 +27,8 @@ def add_parser(sub) -> None:
         description="Draw every toleranced let value of FILE at random, solve all samples together, and report statistics and checks.",
     )
     s.add_argument("file", metavar="FILE", help="circuit file (.dcn)")
-    s.add_argument("--samples", type=int, default=10_000, metavar="N", help="number of samples (default 10,000)")
-    s.add_argument("--seed", type=int, default=1, metavar="S", help="seed of the random draws (default 1; the same seed gives the same result)")
+    s.add_argument("--samples", type=whole_number(1, 100_000_000), default=10_000, metavar="N", help="number of samples (default 10,000)")
+    s.add_argument("--seed", type=whole_number(0), default=1, metavar="S", help="seed of the random draws, 0 or more (default 1; the same seed gives the same result)")
     s.add_argument(
         "--dist", choices=("normal", "uniform"), default="normal",
         help="normal (default): the tolerance is three standard deviations, draws beyond it are drawn again; uniform: every value in the band equally likely",

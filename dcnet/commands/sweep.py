@@ -61,7 +61,7 @@ def parse_vary(text: str, study) -> tuple[str, float, float, int, bool]:
         opt = opt.strip()
         if opt == "log":
             log = True
-        elif opt.isdigit() and int(opt) >= 1:
+        elif opt.isascii() and opt.isdigit() and int(opt) >= 1:
             count = int(opt)
         else:
             raise InputError(f"--vary {text}: '{opt}' is neither a number of points nor 'log'", hint="e.g. run=1m..10m:10 or r=1mOhm..10mOhm:log")

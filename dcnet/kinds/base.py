@@ -23,6 +23,7 @@ and sympy object arrays.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
@@ -31,12 +32,49 @@ import numpy as np
 from ..errors import ValueRangeError
 from ..units import Dim
 
-__all__ = ["Prop", "Kind", "Branches", "positive", "nonnegative", "finite", "check_samples"]
+__all__ = ["Prop", "Kind", "Branches", "positive", "nonnegative", "finite", "check_samples", "check_finished", "above_absolute_zero"]
+
+#: magnitudes a value may have (SI); the language refuses expressions beyond them
+#: (dcnet.language.expressions.MAX_MAGNITUDE / MIN_MAGNITUDE); values a kind derives are held to the same
+MAX_MAGNITUDE = 1e100
+MIN_MAGNITUDE = 1e-100
+ABSOLUTE_ZERO_C = -273.15
 
 
 def finite(name: str, x: float) -> None:
-    if not np.isfinite(x):
+    m = abs(x)
+    if MIN_MAGNITUDE <= m <= MAX_MAGNITUDE or m == 0:  # the common case first (NaN fails both)
+        return
+    if not math.isfinite(x):
         raise ValueRangeError(f"{name}={x} is not a finite number")
+    raise ValueRangeError(f"{name}={x:g} is too {'large' if m > 1 else 'small'} to be a physical quantity")
+
+
+def above_absolute_zero(name: str, x: float) -> None:
+    """A temperature in degrees Celsius above absolute zero."""
+    finite(name, x)
+    if x <= ABSOLUTE_ZERO_C:
+        raise ValueRangeError(f"{name}={x:g} degC is at or below absolute zero ({ABSOLUTE_ZERO_C} degC)")
+
+
+def check_finished(values: dict[str, Any], given=()) -> dict[str, Any]:
+    """Every number an element ends with (given, or derived by its kind's ``finish``) is finite
+    and of physical size; a derived resistance ``r`` is greater than zero. Returns ``values``."""
+    for key, x in values.items():
+        if type(x) is float or (isinstance(x, (float, int)) and not isinstance(x, bool)):
+            m = abs(x)
+            if (MIN_MAGNITUDE <= m <= MAX_MAGNITUDE or m == 0) and (key != "r" or x > 0 or key in given):
+                continue  # the common case, without a call
+            derived = key not in given
+            try:
+                finite(key, float(x))
+                if derived and key == "r" and not x > 0:
+                    raise ValueRangeError(f"r={x:g} Ohm is not a resistance greater than zero")
+            except ValueRangeError as err:
+                if derived:
+                    err.message += " (derived from the element's other values)"
+                raise
+    return values
 
 
 def positive(name: str, x: float) -> None:
@@ -126,7 +164,7 @@ class Kind:
                 trial = dict(values)
                 trial.update({key: float(a[k]) for key, a in out.items()})
                 try:
-                    self.finish(trial)
+                    check_finished(self.finish(trial), given=trial.keys() & self.props.keys())
                 except ValueRangeError as err:
                     err.message += f" (sample {k + 1})"
                     raise

@@ -31,12 +31,12 @@ import numpy as np
 from ..data import awg_name, iec60228_max_resistance, iec60228_table, metals, nec_table8, nec_table8_resistance
 from ..errors import InputError, ValueRangeError
 from ..units import AREA, LENGTH, RESISTANCE_PER_LENGTH, TEMPERATURE
-from .base import Kind, Prop, admittance, check_samples, nonnegative, positive
+from .base import Kind, Prop, above_absolute_zero, admittance, check_samples, positive
 
 __all__ = ["awg_diameter", "awg_area", "conductor_resistance", "table_resistance", "KIND"]
 
 _METAL_ALIASES = {"cu": "copper", "al": "aluminium", "aluminum": "aluminium"}
-_GAUGE = re.compile(r"^\s*(\d+)(?:\s*/\s*0)?\s*$")
+_GAUGE = re.compile(r"^[ \t]*([0-9]+)(?:[ \t]*/[ \t]*0)?[ \t]*$")
 
 
 def parse_gauge(text: str) -> int:
@@ -68,6 +68,47 @@ def conductor_resistance(length: float, area: float, metal: str = "copper", temp
     """Resistance in ohms of one conductor (SI inputs, temperature in degC)."""
     rho20, alpha, _ = metals()[metal]
     return rho20 * (1.0 + alpha * (temp - 20.0)) * length / area
+
+
+#: melting points of the conductor metals at atmospheric pressure, degC (from memory: copper
+#: 1084.62, aluminium 660.32, the fixed points of the temperature scale ITS-90 for both)
+MELTING_C = {"copper": 1084.62, "aluminium": 660.32}
+
+
+def zero_resistance_temp(metal: str) -> float:
+    """The temperature (degC) at which the linear law ``1 + alpha (T - 20)`` reaches zero:
+    ``20 - 1 / alpha`` (copper, alpha 3.93e-3 /K: -234.45 degC; aluminium, 4.03e-3 /K: -228.1 degC)."""
+    _, alpha, _ = metals()[metal]
+    return 20.0 - 1.0 / alpha
+
+
+def check_temperature(metal: str, temp, where: str = "") -> None:
+    """Refuse conductor temperatures (a number, or an array of samples) where the linear law
+    gives no resistance (at or below its zero) or the metal is molten."""
+    low, melt = zero_resistance_temp(metal), MELTING_C[metal]
+    if type(temp) is float and low < temp < melt:
+        return  # one element's temperature, the common case
+    t = np.asarray(temp, dtype=float)
+    bad = np.flatnonzero((t <= low) | (t >= melt))
+    if not len(bad):
+        return
+    k = int(bad[0])
+    x = float(t.flat[k])
+    at = f" (sample {k + 1})" if t.ndim else ""
+    _, alpha, _ = metals()[metal]
+    if x <= low:
+        raise _about("temp", ValueRangeError(
+            f"temp={x:g} degC is at or below {low:.1f} degC, where {metal}'s linear resistance law "
+            f"(alpha {alpha:g} /K at 20 degC) reaches zero resistance{at}",
+            hint="the linear law is for service temperatures; for a conductor this cold give its resistance with r= per length",
+        ))
+    raise _about("temp", ValueRangeError(f"temp={x:g} degC is at or above the melting point of {metal} ({melt:g} degC){at}"))
+
+
+def _about(prop: str, err):
+    """Mark which property an error is about (the language layer points at its value)."""
+    err.prop = prop
+    return err
 
 
 def _temperature_factor(metal: str, temp: float, table_temp: float) -> float:
@@ -111,13 +152,24 @@ def table_resistance(
     return per_m * _temperature_factor("copper", temp, table_temp) * length, source
 
 
+def _check_derived(out: dict) -> None:
+    """A study's derived resistances, held to what :func:`~dcnet.kinds.base.check_finished` holds one element to."""
+    from .base import MAX_MAGNITUDE, MIN_MAGNITUDE
+
+    for key in ("r", "r_per_m"):
+        arr = np.asarray(out[key], dtype=float)
+        bad = np.flatnonzero(~np.isfinite(arr) | (arr <= MIN_MAGNITUDE) | (arr > MAX_MAGNITUDE))
+        if len(bad):
+            k = int(bad[0])
+            at = f" (sample {k + 1})" if arr.ndim else ""
+            raise ValueRangeError(f"the cable's {key}={float(arr.flat[k]):g} is not a resistance of physical size{at}")
+
+
 class Cable(Kind):
     def finish(self, values):
         metal = _METAL_ALIASES.get(values["metal"], values["metal"])
         values["metal"] = metal
         values["class"] = int(values["class"])
-        if values["insulation"] < -273.15:
-            raise ValueRangeError(f"insulation={values['insulation']:g} degC is below absolute zero")
         has_size, has_gauge, has_r = "size" in values, "gauge" in values, "r" in values
         if has_size and has_gauge:
             raise InputError("a cable takes size= or gauge=, not both", hint="keep one of them")
@@ -137,8 +189,7 @@ class Cable(Kind):
                 hint="for example: cable P1 a b length=2m size=25mm2",
             )
         temp = values["temp"]
-        if temp < -273.15:
-            raise ValueRangeError(f"temp={temp:g} degC is below absolute zero")
+        check_temperature(metal, temp)
         if values["model"] == "table":
             if metal != "copper":
                 raise InputError(
@@ -157,18 +208,17 @@ class Cable(Kind):
         """The resistance (and what it derives from) for every sample of a study, by the same
         arithmetic as :meth:`finish`."""
         out = {key: check_samples(self.props[key], key, arr) for key, arr in varied.items()}
-        for key in ("temp", "insulation"):
-            if key in out and np.nanmin(out[key]) < -273.15:
-                k = int(np.nanargmin(out[key]))
-                raise ValueRangeError(f"{key}={out[key][k]:g} degC is below absolute zero (sample {k + 1})")
         length = out.get("length", values["length"])
         if "area" not in values:  # r= per length
             r_per_m = out.pop("r", values["r_per_m"])
             out["r_per_m"] = np.broadcast_to(r_per_m, np.shape(length)) if np.ndim(r_per_m) < np.ndim(length) else r_per_m
             out["r"] = out["r_per_m"] * length
+            _check_derived(out)
             return out
         area = out.get("size", values["area"])
         temp = out.get("temp", values["temp"])
+        if "temp" in out:
+            check_temperature(values["metal"], temp)
         if "size" in varied:
             out["area"] = area  # "size" stays as written, "area" is what the models use
         if values["model"] == "table":
@@ -183,6 +233,7 @@ class Cable(Kind):
             r = conductor_resistance(length, area, values["metal"], temp)
         out["r"] = r
         out["r_per_m"] = r / length
+        _check_derived(out)
         return out
 
     def branches(self, cols):
@@ -205,8 +256,8 @@ KIND = Cable(
         "size": Prop("size", AREA, check=positive, doc="cross-section, e.g. 25mm2"),
         "gauge": Prop("gauge", form="gauge", doc="AWG number: 10, 1/0, 4/0"),
         "metal": Prop("metal", form="word", words=("copper", "aluminium", "aluminum", "cu", "al"), default="copper", doc="conductor metal"),
-        "temp": Prop("temp", TEMPERATURE, default=20.0, doc="conductor temperature"),
-        "r": Prop("r", RESISTANCE_PER_LENGTH, check=nonnegative, doc="resistance per length (overrides the model)"),
+        "temp": Prop("temp", TEMPERATURE, default=20.0, check=above_absolute_zero, doc="conductor temperature"),
+        "r": Prop("r", RESISTANCE_PER_LENGTH, check=positive, doc="resistance per length (overrides the model)"),
         "model": Prop(
             "model", form="word", words=("resistivity", "table"), default="resistivity",
             doc="resistance model: resistivity (rho x length / area) or table (IEC 60228 / NEC Table 8)",
@@ -215,7 +266,7 @@ KIND = Cable(
             "class", form="word", words=("2", "5"), default="5",
             doc="IEC 60228 conductor class for model=table with size=: 2 stranded, 5 flexible (default)",
         ),
-        "insulation": Prop("insulation", TEMPERATURE, default=75.0, doc="insulation temperature rating, for ampacity"),
+        "insulation": Prop("insulation", TEMPERATURE, default=75.0, check=above_absolute_zero, doc="insulation temperature rating, for ampacity"),
     },
     columns=("r", "length"),
 )

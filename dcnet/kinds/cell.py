@@ -28,6 +28,9 @@ class Cell(Kind):
         n = values.get("cells")
         if n is not None and (n != int(n) or n < 1):
             raise ValueRangeError(f"cells (cells in series inside the element) must be a whole number of at least 1, got {n:g}")
+        lo, hi = values.get("vmin"), values.get("vmax")
+        if lo is not None and hi is not None and lo >= hi:
+            raise ValueRangeError(f"vmin ({lo:g} V) must lie below vmax ({hi:g} V)")
         k = values.get("peukert")
         if k is not None and not 1.0 <= k <= 2.0:
             raise ValueRangeError(f"peukert exponent must lie between 1 and 2, got {k:g}", hint="lead-acid batteries are typically 1.1 to 1.3")

@@ -24,7 +24,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..units import CURRENT, DIMENSIONLESS, RESISTANCE, TEMPERATURE, VOLTAGE
-from .base import Kind, Prop, admittance, mixed, nonnegative, positive
+from .base import Kind, Prop, above_absolute_zero, admittance, mixed, nonnegative, positive
 
 BLOCKED, CONDUCTING = 0, 1
 G_FLOOR = 1e-12
@@ -145,7 +145,7 @@ KIND = Diode(
         "r": Prop("r", RESISTANCE, check=positive, doc="forward resistance (piecewise-linear form)"),
         "is": Prop("is", CURRENT, check=positive, doc="saturation current (junction form)"),
         "n": Prop("n", DIMENSIONLESS, check=positive, doc="ideality factor (junction form, default 1)"),
-        "temp": Prop("temp", TEMPERATURE, doc="junction temperature (junction form, default 25 degC)"),
+        "temp": Prop("temp", TEMPERATURE, check=above_absolute_zero, doc="junction temperature (junction form, default 25 degC)"),
         "roff": Prop("roff", RESISTANCE, check=positive, doc="reverse (leakage) resistance"),
     },
     columns=("drop", "r", "is", "n", "temp", "roff"),

@@ -11,11 +11,25 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, ValueRangeError
 from ..units import CURRENT, POWER, RESISTANCE, VOLTAGE
-from .base import Kind, Prop, admittance, positive, present, safe_inverse
+from .base import Kind, Prop, admittance, finite, nonnegative, positive, present, safe_inverse
 
 ON, DROPPED = 0, 1
+
+_SOURCE_HINT = "a load only draws; something that feeds the network is a supply (a current source) or a source (a voltage source)"
+
+
+def drawn_current(name: str, x: float) -> None:
+    finite(name, x)
+    if x < 0:
+        raise ValueRangeError(f"a load's {name} must not be negative, got {x:g} A", hint=_SOURCE_HINT)
+
+
+def drawn_power(name: str, x: float) -> None:
+    finite(name, x)
+    if x <= 0:
+        raise ValueRangeError(f"a load's {name} must be greater than zero, got {x:g} W", hint=_SOURCE_HINT if x < 0 else "leave the load out, or give it its power")
 
 
 class Load(Kind):
@@ -70,9 +84,9 @@ KIND = Load(
     doc="consumer: resistive (r), constant-current (current) or constant-power (power)",
     props={
         "r": Prop("r", RESISTANCE, check=positive, doc="resistance"),
-        "current": Prop("current", CURRENT, doc="constant current drawn (first node to second)"),
-        "power": Prop("power", POWER, check=positive, doc="constant power drawn"),
-        "vmin": Prop("vmin", VOLTAGE, doc="lowest working voltage (a constant-power load drops out below it)"),
+        "current": Prop("current", CURRENT, check=drawn_current, doc="constant current drawn (first node to second)"),
+        "power": Prop("power", POWER, check=drawn_power, doc="constant power drawn"),
+        "vmin": Prop("vmin", VOLTAGE, check=nonnegative, doc="lowest working voltage (a constant-power load drops out below it)"),
         "critical": Prop("critical", form="word", words=("yes", "no"), default="no", doc="a critical load (3 % drop limit instead of 10 %)"),
     },
     columns=("r", "current", "power", "vmin"),

@@ -71,7 +71,7 @@ BANK = Kind(
     },
 )
 
-_TARGET = re.compile(r"^s(\d+)(?:\.c(\d+))?\.([A-Za-z_]\w*)$")
+_TARGET = re.compile(r"^s([0-9]+)(?:\.c([0-9]+))?\.([A-Za-z_][A-Za-z0-9_]*)$")
 
 
 def expand_bank(st, s, file: str) -> None:

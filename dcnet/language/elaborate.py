@@ -28,13 +28,13 @@ from ..errors import (
     ValueRangeError,
 )
 from ..kinds import KINDS
-from ..kinds.base import Kind
+from ..kinds.base import Kind, check_finished
 from ..netlist import Element, Limit, Netlist
-from ..units import DIMENSIONLESS, Quantity, dim_name, lookup_unit
+from ..units import CURRENT, DIMENSIONLESS, VOLTAGE, Quantity, dim_name, lookup_unit
 from .expressions import ExpressionProblem, evaluate, names_in
-from .parser import KEYWORDS, Prop, Statement, parse_statements, parse_value, suggest
+from .parser import KEYWORDS, Prop, Statement, lookalike_hint, parse_statements, parse_value, scan_lookalikes, suggest
 
-__all__ = ["Options", "load", "parse", "LIMIT_RULES"]
+__all__ = ["Options", "load", "parse", "read_stdin", "LIMIT_RULES"]
 
 #: the `limit` rules the checks layer knows, with their properties
 LIMIT_RULES: dict[str, dict[str, str]] = {
@@ -117,6 +117,8 @@ class _State:
     pending_deps: dict[str, Any] = field(default_factory=dict)
     part_deps: dict[str, dict[str, Any]] = field(default_factory=dict)
     last_tree: Any = None
+    #: where each limit statement's properties were written (checked once every name is known)
+    limit_spans: list[tuple[Limit, dict[str, Span]]] = field(default_factory=list)
 
     def __post_init__(self):
         self.scope.env = self.env
@@ -182,6 +184,62 @@ def _read_files_on_error(st: _State):
         raise
 
 
+_CHUNK = 1 << 20
+
+
+def _read_bounded(fh, limit: int, name: str, span: Span | None) -> bytes:
+    """At most ``limit`` bytes of an open binary stream, read in chunks; one byte more is an error.
+
+    The size a file reports is not trusted: a device (``/dev/zero``), a pipe or standard input
+    has none, and a file can grow while it is read."""
+    parts: list[bytes] = []
+    total = 0
+    while True:
+        chunk = fh.read(min(_CHUNK, limit + 1 - total))
+        if not chunk:
+            return (b"" if not parts or isinstance(parts[0], bytes) else "").join(parts)
+        parts.append(chunk)
+        total += len(chunk)
+        if total > limit:
+            raise LimitError(
+                f"{name + ' is' if span else 'the input is'} longer than the limit of {limit:,} bytes (--max-file-bytes)",
+                span=span,
+                hint="raise it with --max-file-bytes if the input is trusted",
+            )
+
+
+def _decode(data: bytes, name: str) -> str:
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        col = exc.start - (data.rfind(b"\n", 0, exc.start) + 1) + 1
+        raise InputError(
+            f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x})",
+            span=Span(name, line, col),
+            hint="save the file as UTF-8 text; circuit files are plain text",
+        ) from None
+
+
+def read_stdin(options: Options | None = None, stream=None) -> str:
+    """Standard input as circuit text, within ``options.max_file_bytes`` (read in chunks, so an
+    endless input stops at the limit)."""
+    import sys
+
+    options = options or Options()
+    fh = stream if stream is not None else sys.stdin
+    if fh is None:  # started with standard input closed
+        raise InputError("standard input is closed", span=Span("<stdin>"), hint="give the circuit file's name, or pipe it in")
+    fh = getattr(fh, "buffer", fh)
+    try:
+        data = _read_bounded(fh, options.max_file_bytes, "standard input", Span("<stdin>"))
+    except OSError as exc:
+        raise InputError(f"cannot read standard input: {exc.strerror or exc}", span=Span("<stdin>")) from None
+    if isinstance(data, str):  # a text stream without a buffer (tests)
+        data = data.encode("utf-8")
+    return _decode(data, "<stdin>")
+
+
 def _read(p: Path, options: Options, span: Span | None) -> str:
     try:
         size = p.stat().st_size
@@ -192,7 +250,7 @@ def _read(p: Path, options: Options, span: Span | None) -> str:
                 hint="raise it with --max-file-bytes if the file is trusted",
             )
         with open(p, "rb") as fh:
-            data = fh.read()
+            data = _read_bounded(fh, options.max_file_bytes, str(p), span)
     except IsADirectoryError:
         raise InputError(f"{p} is a folder, not a circuit file", span=span) from None
     except FileNotFoundError:
@@ -201,17 +259,10 @@ def _read(p: Path, options: Options, span: Span | None) -> str:
     except PermissionError:
         raise InputError(f"cannot read {p}: permission denied", span=span) from None
     except OSError as exc:
-        raise InputError(f"cannot read {p}: {exc.strerror}", span=span) from None
-    try:
-        return data.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = data[: exc.start].count(b"\n") + 1
-        col = exc.start - (data.rfind(b"\n", 0, exc.start) + 1) + 1
-        raise InputError(
-            f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x})",
-            span=Span(str(p), line, col),
-            hint="save the file as UTF-8 text; circuit files are plain text",
-        ) from None
+        raise InputError(f"cannot read {p}: {exc.strerror or exc}", span=span) from None
+    except ValueError as exc:  # a NUL byte in the name
+        raise InputError(f"cannot read {str(p)!r}: {exc}", span=span, hint="a file name cannot hold a NUL character") from None
+    return _decode(data, str(p))
 
 
 # -------------------------------------------------------------- statements
@@ -494,6 +545,7 @@ def _resolve_prop(st: _State, kind: Kind, p: Prop, file: str, owner: str) -> Any
     if spec.form == "words":
         return tuple(w.strip() for w in p.raw.split(",") if w.strip())
     if spec.form == "gauge":
+        scan_lookalikes(p.raw, span, _src(st, file, span.line))
         return p.raw.strip()
     q = _quantity(st, p.raw, span, file)
     if st.last_tree is not None:
@@ -511,6 +563,9 @@ def _resolve_prop(st: _State, kind: Kind, p: Prop, file: str, owner: str) -> Any
         try:
             spec.check(p.key, q.value)
         except ValueRangeError as err:
+            written = p.raw.strip()
+            if not written.startswith(f"{q.value:g}") and written not in err.message:  # the check words SI numbers
+                err.message += f" (written {written})"
             err.with_span(span)
             raise
     return q.value
@@ -638,8 +693,12 @@ def element_values(st: _State, kind: Kind, props, file: str, name: str, name_spa
             if spec.default is not None:
                 values[spec.name] = spec.default
     try:
-        return kind.finish(values)
+        given = set(values)
+        return check_finished(kind.finish(values), given)
     except DcnetError as err:
+        at = next((p for p in props if p.key == getattr(err, "prop", None)), None)
+        if at is not None:  # the kind says which property is wrong: point at its value
+            err.with_span(_value_span(file, at), _src(st, file, at.line))
         err.with_span(name_span, _src(st, file, name_span.line))
         if err.element is None:
             err.element = name
@@ -711,7 +770,17 @@ def _include(st: _State, s: Statement, file: str, folder: Path) -> None:
             span=span,
             hint="raise the limit with --max-include-depth if the files are trusted",
         )
-    target = (folder / rel).resolve()  # resolves symlinks before the check
+    bad = next((ch for ch in rel if ord(ch) < 32 or ord(ch) == 127), None)
+    if bad is not None:
+        raise IncludeError(
+            f"the include path holds the control character {bad!r}",
+            span=span,
+            hint="a file name cannot hold control characters (NUL, tab, escape ...); check how the file was written",
+        )
+    try:
+        target = (folder / rel).resolve()  # resolves symlinks before the check
+    except (OSError, RuntimeError, ValueError) as exc:  # a symlink loop, a name too long ...
+        raise IncludeError(f"include '{rel}' cannot be followed: {getattr(exc, 'strerror', None) or exc}", span=span) from None
     inside = True
     if st.root is not None:
         try:
@@ -736,29 +805,133 @@ def _include(st: _State, s: Statement, file: str, folder: Path) -> None:
         st.include_stack.pop()
 
 
+#: the unit kind of each limit's max/min
+_LIMIT_DIMS = {"imbalance": DIMENSIONLESS, "drop": DIMENSIONLESS, "current": CURRENT, "circulating": CURRENT, "voltage": VOLTAGE}
+#: properties a limit rule cannot do without ("|": one of them)
+_LIMIT_NEEDS = {
+    "imbalance": ("among",),
+    "circulating": ("max", "among"),
+    "drop": ("from", "to"),
+    "current": ("of", "max|min"),
+    "voltage": ("of|from", "max|min"),
+}
+
+
 def _limit(st: _State, s: Statement, file: str) -> None:
     rule = s.args[0]
     props = LIMIT_RULES.get(rule)
+    rule_span = Span(file, *s.arg_pos[0], len(rule))
     if props is None:
         near = suggest(rule, LIMIT_RULES)
         raise UnknownNameError(
             f"unknown limit rule '{rule}'",
-            span=Span(file, *s.arg_pos[0], len(rule)),
+            span=rule_span,
             hint=(f"did you mean '{near}'? " if near else "") + "rules: " + ", ".join(LIMIT_RULES),
         )
     values: dict[str, Any] = {}
+    spans: dict[str, Span] = {}
     for p in s.props:
         form = props.get(p.key)
         if form is None:
             raise _no_such_property(f"limit {rule}", "it takes", props, p, file)
+        if p.key in values:
+            raise InputError(f"property '{p.key}' is given twice", span=Span(file, p.line, p.column, len(p.key)))
         scope = st.scope
+        span = spans[p.key] = _value_span(file, p)
         if form == "quantity":
-            values[p.key] = _quantity(st, p.raw, _value_span(file, p), file)
+            q = _quantity(st, p.raw, span, file)
+            want = _LIMIT_DIMS[rule]
+            if q.dim != want:
+                raise DimensionError(
+                    f"{p.key} of limit {rule} must be {dim_name(want)}, got {dim_name(q.dim)}",
+                    span=span,
+                    hint=f"e.g. {p.key}=5{_example_unit(want) or '%'}" if want != DIMENSIONLESS else "e.g. max=10%",
+                )
+            if not q.value > 0 and not (p.key == "min" and q.value == 0):
+                raise ValueRangeError(
+                    f"{p.key} of limit {rule} must be greater than zero, got {q.value:g}",
+                    span=span,
+                    hint="limits are on magnitudes (currents and voltages either way round)",
+                )
+            values[p.key] = q
         elif form == "words":
-            values[p.key] = tuple(scope.name(w.strip()) for w in p.raw.split(",") if w.strip())
+            words = tuple(scope.name(w.strip()) for w in p.raw.split(",") if w.strip())
+            for m in re.finditer(r"[^,\s]+", p.raw):  # each name's own span, for messages
+                spans[(p.key, scope.name(m.group(0)))] = Span(file, p.line, p.value_column + m.start(), len(m.group(0)))
+            if not words:
+                raise InputError(f"{p.key}= of limit {rule} names nothing", span=span, hint=f"write {p.key}=NAME,NAME ...")
+            values[p.key] = words
         else:
             values[p.key] = scope.node(p.raw.strip())
-    st.net.limits.append(Limit(rule, values, Span(file, s.line, s.column, len(rule))))
+    for need in _LIMIT_NEEDS[rule]:
+        keys = need.split("|")
+        if not any(k in values for k in keys):
+            raise InputError(
+                f"limit {rule} needs {' or '.join(k + '=' for k in keys)}",
+                span=rule_span,
+                hint=f"it is written: {_LIMIT_USAGE[rule]}",
+            )
+    if ("from" in values) != ("to" in values):
+        raise InputError(f"limit {rule} needs both from= and to=", span=rule_span, hint=f"it is written: {_LIMIT_USAGE[rule]}")
+    if "max" in values and "min" in values and values["min"].value > values["max"].value:
+        raise ValueRangeError(f"min of limit {rule} is above its max", span=spans["min"])
+    lim = Limit(rule, values, Span(file, s.line, s.column, len(rule)))
+    st.net.limits.append(lim)
+    st.limit_spans.append((lim, spans))
+
+
+_LIMIT_USAGE = {
+    "imbalance": "limit imbalance max=10% among=BANK (or among=A,B,...)",
+    "circulating": "limit circulating max=2A among=BANK",
+    "drop": "limit drop max=3% from=NODE to=NODE",
+    "current": "limit current max=50A of=A,B",
+    "voltage": "limit voltage max=14.4V min=11V of=A,B (or from=NODE to=NODE)",
+}
+
+
+def _check_limit_names(st: _State) -> None:
+    """Every name a limit statement gives must be an element, bank or node of the circuit
+    (a limit that names nothing would silently check nothing)."""
+    net = st.net
+    for lim, spans in st.limit_spans:
+        for key, span in list(spans.items()):
+            if not isinstance(key, str) or key in ("max", "min"):
+                continue
+            got = lim.values[key]
+            words = {k[1]: sp for k, sp in spans.items() if isinstance(k, tuple) and k[0] == key}
+            if key in ("from", "to"):
+                _known(st, "node", [got], net.node_index, span)
+            elif key == "of":
+                _known(st, "element", got, net._by_name, span, words)
+            elif lim.rule == "circulating":
+                _known(st, "bank", got, net.banks, span, words)
+            elif len(got) == 1 and got[0] not in net.banks:  # imbalance among: one bank, or two or more elements
+                _known(st, "bank", got, net.banks, span, words, also=net._by_name)
+                raise InputError(
+                    f"limit imbalance among={got[0]} names one element; an imbalance is between two or more",
+                    span=span,
+                    source_line=_src(st, span.file, span.line),
+                    hint="name a bank (among=BANK) or two or more elements (among=A1,A2)",
+                )
+            elif len(got) > 1:
+                _known(st, "element", got, net._by_name, span, words)
+
+
+def _known(st: _State, what: str, names, table, span: Span, spans=None, also=None) -> None:
+    for name in names:
+        if name in table or (also is not None and name in also):
+            continue
+        span = (spans or {}).get(name, span)
+        pool = list(table) + (list(also) if also is not None else [])
+        near = suggest(name, pool) if len(pool) <= 100_000 else None
+        known = ", ".join(list(table)[:8]) + (" ..." if len(table) > 8 else "")
+        odd = next((lookalike_hint(ch) for ch in name if not ch.isascii() and lookalike_hint(ch)), None)
+        raise UnknownNameError(
+            f"limit names '{name}', which is not {'an' if what[0] in 'ae' else 'a'} {what} of the circuit",
+            span=span,
+            source_line=_src(st, span.file, span.line),
+            hint=(odd + "; " if odd else "") + (f"did you mean '{near}'?" if near else (f"{what}s: {known}" if table else f"the circuit has no {what}s")),
+        )
 
 
 def _phase(st: _State, s: Statement, file: str) -> None:
@@ -786,6 +959,12 @@ def _phase(st: _State, s: Statement, file: str) -> None:
                 raise DimensionError(f"{p.key} of phase {label} must be {dim_name(spec)}, got {dim_name(q.dim)}", span=span)
             if p.key in ("for", "max", "step") and q.value <= 0:
                 raise ValueRangeError(f"{p.key} must be greater than zero, got {q.value:g} s", span=span)
+            if p.key in ("soc_above", "soc_below") and not 0.0 <= q.value <= 1.0:
+                raise ValueRangeError(
+                    f"{p.key} must lie between 0% and 100%, got {q.value * 100:g}%",
+                    span=span,
+                    hint="a state of charge outside 0..100 % is never reached: the phase would end at once or never",
+                )
             values[p.key] = q.value
     try:
         st.net.phases.append(Phase.from_values(label, values, Span(file, s.line, s.column, len(label))))
@@ -813,13 +992,19 @@ _HANDLERS.update(
 def _finish(st: _State) -> None:
     net = st.net
     for ph in net.phases:
-        ph.check_names(net)
+        try:
+            ph.check_names(net)
+        except DcnetError as err:
+            if err.span is not None and err.source_line is None:
+                err.source_line = _src(st, err.span.file, err.span.line)
+            raise
     if not net.elements:
         raise InputError(
             "the circuit has no elements",
             span=Span(net.files[0] if net.files else "<text>"),
             hint="add at least a source or cell and a load",
         )
+    _check_limit_names(st)
     if net.ground is not None:
         if net.ground not in net.node_index:
             near = suggest(net.ground, net.node_index)

@@ -13,10 +13,17 @@ import math
 from ..errors import DimensionError, UnknownNameError, ValueRangeError
 from ..units import DIMENSIONLESS, Quantity, dim_name, lookup_unit
 
-__all__ = ["evaluate", "evaluate_array", "names_in", "ExpressionProblem", "MAX_MAGNITUDE"]
+__all__ = ["evaluate", "evaluate_array", "names_in", "ExpressionProblem", "MAX_MAGNITUDE", "MIN_MAGNITUDE"]
 
 #: results beyond this magnitude are refused as overflow
 MAX_MAGNITUDE = 1e100
+#: non-zero results below this magnitude are refused as underflow (and so is a product or
+#: quotient of non-zero values that comes out zero): nothing physical in a DC network is that
+#: small in SI units, and such values (subnormal floats among them) would only turn into
+#: infinities inside the solve (1 / 1e-320 overflows)
+MIN_MAGNITUDE = 1e-100
+
+_UNDERFLOW = "the value underflows (too small to be a physical quantity)"
 
 
 class ExpressionProblem(Exception):
@@ -54,9 +61,13 @@ def _column(node) -> int:
     return _column(node[1])
 
 
-def _check_finite(value: float, node) -> float:
+def _check_finite(value: float, node, *operands: float) -> float:
+    """``value`` if it is a finite number of physical size; ``operands`` (of a product, quotient
+    or power) tell an underflow to zero from a true zero."""
     if not math.isfinite(value) or abs(value) > MAX_MAGNITUDE:
         raise ExpressionProblem(ValueRangeError, "the value overflows (too large to be a physical quantity)", _column(node))
+    if (value != 0 and abs(value) < MIN_MAGNITUDE) or (value == 0 and operands and all(x != 0 for x in operands)):
+        raise ExpressionProblem(ValueRangeError, _UNDERFLOW, _column(node))
     return value
 
 
@@ -101,11 +112,11 @@ def evaluate(tree, env: dict[str, Quantity], suggest=None) -> Quantity:
         v = left.value + right.value if tag == "add" else left.value - right.value
         return Quantity(_check_finite(v, tree), left.dim)
     if tag == "mul":
-        return Quantity(_check_finite(left.value * right.value, tree), _combine(left.dim, right.dim, 1))
+        return Quantity(_check_finite(left.value * right.value, tree, left.value, right.value), _combine(left.dim, right.dim, 1))
     if tag == "div":
         if right.value == 0:
             raise ExpressionProblem(ValueRangeError, "division by zero", _column(tree[2]))
-        return Quantity(_check_finite(left.value / right.value, tree), _combine(left.dim, right.dim, -1))
+        return Quantity(_check_finite(left.value / right.value, tree, left.value), _combine(left.dim, right.dim, -1))
     if tag == "pow":
         if right.dim != DIMENSIONLESS:
             raise ExpressionProblem(DimensionError, "an exponent must be a plain number", _column(tree[2]))
@@ -120,7 +131,7 @@ def evaluate(tree, env: dict[str, Quantity], suggest=None) -> Quantity:
             raise ExpressionProblem(ValueRangeError, "the power overflows or divides by zero", _column(tree[1])) from None
         if isinstance(v, complex):
             raise ExpressionProblem(ValueRangeError, "a negative number to a fractional power", _column(tree[1]))
-        return Quantity(_check_finite(v, tree), tuple(int(d * p) for d in left.dim))
+        return Quantity(_check_finite(v, tree, left.value), tuple(int(d * p) for d in left.dim))
     raise AssertionError(tag)  # pragma: no cover
 
 
@@ -191,10 +202,10 @@ def evaluate_array(tree, env) -> Quantity:
             v = left.value + right.value if tag == "add" else left.value - right.value
             return Quantity(_finite_array(v, tree), left.dim)
         if tag == "mul":
-            return Quantity(_finite_array(left.value * right.value, tree), _combine(left.dim, right.dim, 1))
+            return Quantity(_finite_array(left.value * right.value, tree, left.value, right.value), _combine(left.dim, right.dim, 1))
         if tag == "div":
             _refuse_where(np.asarray(right.value) == 0, ValueRangeError, "division by zero", _column(tree[2]))
-            return Quantity(_finite_array(left.value / right.value, tree), _combine(left.dim, right.dim, -1))
+            return Quantity(_finite_array(left.value / right.value, tree, left.value), _combine(left.dim, right.dim, -1))
         if tag == "pow":
             if right.dim != DIMENSIONLESS:
                 raise ExpressionProblem(DimensionError, "an exponent must be a plain number", _column(tree[2]))
@@ -211,7 +222,7 @@ def evaluate_array(tree, env) -> Quantity:
             _refuse_where((base < 0) & (p != np.floor(p)), ValueRangeError, "a negative number to a fractional power", _column(tree[1]))
             v = left.value**right.value
             dim = left.dim if left.dim == DIMENSIONLESS else tuple(int(d * (p.flat[0] if p.ndim else p)) for d in left.dim)
-            return Quantity(_finite_array(v, tree), dim)
+            return Quantity(_finite_array(v, tree, left.value), dim)
     raise AssertionError(tag)  # pragma: no cover
 
 
@@ -231,11 +242,18 @@ def _refuse_where(mask, error_class, message: str, column: int) -> None:
         raise ExpressionProblem(error_class, message + where, column)
 
 
-def _finite_array(v, node):
+def _finite_array(v, node, *operands):
     import numpy as np
 
     arr = np.asarray(v)
     _refuse_where(~np.isfinite(arr) | (np.abs(arr) > MAX_MAGNITUDE), ValueRangeError, "the value overflows (too large to be a physical quantity)", _column(node))
+    tiny = (arr != 0) & (np.abs(arr) < MIN_MAGNITUDE)
+    if operands:
+        nonzero = np.ones(arr.shape, dtype=bool)
+        for x in operands:
+            nonzero = nonzero & (np.asarray(x) != 0)
+        tiny = tiny | ((arr == 0) & nonzero)
+    _refuse_where(tiny, ValueRangeError, _UNDERFLOW, _column(node))
     return v
 
 

@@ -20,6 +20,7 @@ from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
 
 from ..errors import DcnetError, InputError, Span, SyntaxError, UnknownNameError, ValueRangeError
 from ..units import Quantity, lookup_unit, suggest_unit
+from .expressions import MAX_MAGNITUDE, MIN_MAGNITUDE
 
 __all__ = [
     "Prop",
@@ -194,12 +195,13 @@ def _props(tokens) -> tuple[Prop, ...]:
     return tuple(out)
 
 
-_NUM = re.compile(r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+\-]?\d+)?")
+_NONZERO_DIGIT = re.compile(r"[1-9]")
+_NUM = re.compile(r"(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+\-]?[0-9]+)?")
 
 
 class _NumberError(Exception):
-    def __init__(self, text: str):
-        self.text = text
+    def __init__(self, text: str, small: bool = False):
+        self.text, self.small = text, small
 
 
 class _UnitError(Exception):
@@ -210,8 +212,11 @@ class _UnitError(Exception):
 def _quantity(text: str) -> Quantity:
     m = _NUM.match(text)
     number = float(m.group(0))
-    if not math.isfinite(number) or number > 1e100:
+    if not math.isfinite(number) or number > MAX_MAGNITUDE:
         raise _NumberError(m.group(0))
+    nonzero = number != 0 or bool(_NONZERO_DIGIT.search(m.group(0).partition("e")[0].partition("E")[0]))
+    if nonzero and number < MIN_MAGNITUDE:  # also 1e-400, which reads as zero
+        raise _NumberError(m.group(0), small=True)
     rest = text[m.end():]
     unit = rest.strip()
     if not unit:
@@ -219,7 +224,12 @@ def _quantity(text: str) -> Quantity:
     q = lookup_unit(unit)
     if q is None:
         raise _UnitError(unit, len(text) - len(unit))
-    return Quantity(number * q.value, q.dim)
+    value = number * q.value
+    if not math.isfinite(value) or value > MAX_MAGNITUDE:
+        raise _NumberError(text)
+    if nonzero and value < MIN_MAGNITUDE:
+        raise _NumberError(text, small=True)
+    return Quantity(value, q.dim)
 
 
 @lru_cache(maxsize=1)
@@ -380,11 +390,12 @@ def _diagnose_line(src: str, column: int):
     bad = [w for w in head if not re.fullmatch(r"[A-Za-z0-9_][A-Za-z0-9_.+\-]*", w)]
     if bad:
         col = src.find(bad[0], indent)
+        odd = next((ch for ch in bad[0] if not ch.isascii() and lookalike_hint(ch)), None)
         return (
             f"'{bad[0]}' is not a valid name",
             col + 1,
             len(bad[0]),
-            "names start with a letter, digit or '_' and hold letters, digits, '_', '.', '+' and '-'",
+            (lookalike_hint(odd) + "; " if odd else "") + "names start with a letter, digit or '_' and hold ASCII letters, digits, '_', '.', '+' and '-'",
         )
     return None
 
@@ -403,6 +414,13 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int =
     if isinstance(exc, UnexpectedCharacters):
         ch = src[column - 1] if column - 1 < len(src) else ""
         found = f"the character {ch!r}"
+        if ch and not ch.isascii() and lookalike_hint(ch):
+            return SyntaxError(
+                f"found the character {ch!r} (U+{ord(ch):04X})",
+                span=Span(file, line + line_offset, column + col_offset, 1),
+                hint=lookalike_hint(ch),
+                source_line=src,
+            )
         expected = _describe_expected(set(exc.allowed or ()))
     elif isinstance(exc, UnexpectedToken):
         tok = exc.token
@@ -441,6 +459,11 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str, line_offset: int =
     elif col_offset and isinstance(exc, UnexpectedToken) and exc.token.type in ("NAME", "QUANTITY", "IDENT", "ELEMHEAD"):
         message = f"found {found} after a complete value"
         hint = f"is an '=' missing ({exc.token}=...)? or an operator (* + - /) between two values?"
+    word = src[column - 1 :].split()[0] if src[column - 1 :].split() else ""
+    odd = next((ch for ch in word if not ch.isascii() and lookalike_hint(ch)), None)
+    if odd is not None:  # e.g. a full-width '=' makes the property unreadable: say which character
+        hint = lookalike_hint(odd)
+        message += f" (it holds the character {odd!r}, U+{ord(odd):04X})"
     span = Span(file, line + line_offset, column + col_offset, 1)
     return SyntaxError(message, span=span, hint=hint, source_line=src)
 
@@ -475,6 +498,79 @@ def _property_hint(src: str, column: int):
     return None
 
 
+# ------------------------------------------------------ look-alike characters
+#: non-ASCII characters the language reads: MICRO SIGN (µ, U+00B5), GREEK CAPITAL LETTER OMEGA
+#: (Ω, U+03A9), DEGREE SIGN (°, U+00B0), PLUS-MINUS SIGN (±, U+00B1) and SUPERSCRIPT TWO (²,
+#: U+00B2) at the end of a unit (mm²)
+ACCEPTED = "\u00b5\u03a9\u00b0\u00b1\u00b2"
+
+_LOOKALIKE_HINTS = {
+    "\u2126": "the OHM SIGN (U+2126) looks like Ω but is another character; write Ohm, or Ω (GREEK CAPITAL LETTER OMEGA, U+03A9)",
+    "\u03bc": "the GREEK SMALL LETTER MU (U+03BC) looks like µ but is another character; write u, or µ (MICRO SIGN, U+00B5), for micro",
+    "\u212a": "the KELVIN SIGN (U+212A) looks like K; temperatures are written in degC",
+    "\u2103": "write degC or °C (two characters) for degrees Celsius",
+    "\u00ba": "the MASCULINE ORDINAL INDICATOR (º) looks like the degree sign; write degC, or °C with the DEGREE SIGN (U+00B0)",
+    "\u02da": "the RING ABOVE (˚) looks like the degree sign; write degC, or °C with the DEGREE SIGN (U+00B0)",
+    "\u00d7": "write * for a product",
+    "\u22c5": "write * for a product",
+    "\u00b7": "write * for a product",
+    "\u2219": "write * for a product",
+    "\u00f7": "write / for a quotient",
+    "\u2215": "write / for a quotient",
+    "\u2044": "write / for a quotient",
+    "\u2212": "the MINUS SIGN (U+2212) looks like '-' but is another character; write the ASCII '-'",
+    "\u2010": "write the ASCII '-' for a minus",
+    "\u2011": "write the ASCII '-' for a minus",
+    "\u2012": "write the ASCII '-' for a minus",
+    "\u2013": "the EN DASH (U+2013) looks like '-' but is another character; write the ASCII '-'",
+    "\u2014": "the EM DASH (U+2014) looks like '-' but is another character; write the ASCII '-'",
+    "\ufe63": "write the ASCII '-' for a minus",
+    "\u2032": "write ft for feet",
+    "\u2019": "quotes do not belong in a value",
+}
+
+
+def lookalike_hint(ch: str) -> str | None:
+    """A hint for a non-ASCII character that looks like one the language reads, or None."""
+    import unicodedata
+
+    if ch in _LOOKALIKE_HINTS:
+        return _LOOKALIKE_HINTS[ch]
+    name = unicodedata.name(ch, f"U+{ord(ch):04X}")
+    cat = unicodedata.category(ch)
+    if cat == "Nd":
+        return f"'{ch}' ({name}) is not read as a digit; write the ASCII digit {unicodedata.digit(ch)}"
+    if cat in ("Zs", "Cf") or ch in "\u00a0\u2060\ufeff":
+        return f"{name} (U+{ord(ch):04X}) is an unusual or invisible space; write an ordinary space, or nothing"
+    folded = unicodedata.normalize("NFKC", ch)
+    if cat == "No":
+        return f"'{ch}' ({name}) is not read as a number; write ASCII digits (0-9), e.g. 0.5; powers are written with ^, e.g. 10^2"
+    if folded != ch and folded.isascii():
+        return f"'{ch}' ({name}) looks like '{folded}' but is another character; write '{folded}'"
+    return None
+
+
+def scan_lookalikes(raw: str, span: Span, source_line: str | None) -> None:
+    """Refuse a value holding a character that only looks like one the language reads (a
+    full-width or other script's digit, the OHM SIGN, a minus sign, a no-break space ...)."""
+    if raw.isascii():
+        return
+    for k, ch in enumerate(raw):
+        if ch.isascii() and not ch.isprintable() and ch != "\t":
+            return  # a control character comes first: the value's own error names the whole word
+        if ch.isascii() or (ch in ACCEPTED and (ch != "\u00b2" or (k and raw[k - 1].isalpha()))):
+            continue
+        import unicodedata
+
+        name = unicodedata.name(ch, "unnamed")
+        raise SyntaxError(
+            f"found the character {ch!r} (U+{ord(ch):04X} {name}) in a value",
+            span=Span(span.file, span.line, span.column + k, 1),
+            hint=lookalike_hint(ch) or "values are written with ASCII digits, letters and + - * / ^ ( ); units may use µ, Ω, ° and ²",
+            source_line=source_line,
+        )
+
+
 # ------------------------------------------------------------------ entry
 def parse_statements(text: str, file: str = "<text>") -> list[Statement]:
     """Parse a whole circuit text into statements (values kept raw)."""
@@ -501,6 +597,7 @@ def parse_value(raw: str, span: Span, source_line: str | None = None):
 
     ``span`` is where the value starts in its file; error columns are mapped into it.
     """
+    scan_lookalikes(raw, span, source_line)
     try:
         return _parse_value_cached(raw)
     except UnexpectedInput as exc:
@@ -518,7 +615,7 @@ def _value_error(orig, raw: str, span: Span, source_line: str | None) -> DcnetEr
     if isinstance(orig, _NumberError):
         col = raw.find(orig.text)
         return ValueRangeError(
-            f"the number {orig.text} is too large to be a physical quantity",
+            f"the number {orig.text} is too {'small' if orig.small else 'large'} to be a physical quantity",
             span=Span(span.file, span.line, span.column + max(col, 0), len(orig.text)),
             source_line=source_line,
         )

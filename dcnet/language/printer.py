@@ -62,7 +62,11 @@ def to_text(net: Netlist) -> str:
                 parts.append(f"{k}={format_quantity(v.value, v.dim)}")
             else:
                 parts.append(f"{k}={v}")
-        lines.append(" ".join(["limit", lim.rule, *parts]))
+        text = " ".join(["limit", lim.rule, *parts])
+        banks = [w for w in lim.values.get("among", ()) if w in net.banks]
+        if banks:  # banks are written out as their elements: a limit on a bank has nothing to name
+            text = f"# {text}  (bank {', '.join(banks)} is written as its elements; this limit is not kept)"
+        lines.append(text)
     if net.ground is not None and net.ground_rule == "ground statement":
         lines.append(f"ground {net.ground}")
     if net.practice:

@@ -237,7 +237,9 @@ def networks(draw, max_nodes: int = 8, max_extra: int = 10, forms=FORMS):
                 b=nodes[w],
                 r=draw(resistances) if form in RESISTIVE else 0.0,
                 emf=draw(emfs) if form in ("cell", "source_r", "source") else 0.0,
-                cur=draw(currents) if form in ("supply", "load_i") else 0.0,
+                # a load only draws (the language refuses a negative load current); either way
+                # round comes from the random orientation of the branch
+                cur=(abs(draw(currents)) if form == "load_i" else draw(currents)) if form in ("supply", "load_i") else 0.0,
             )
         )
     ground = nodes[draw(st.integers(0, n - 1))]
@@ -367,7 +369,7 @@ def _large_network(n_nodes: int, n_extra: int, seed: int) -> Network:
                 nodes[w],
                 r=_value(10 ** rng.uniform(-2, 2)) if form in RESISTIVE else 0.0,
                 emf=_value(rng.uniform(10, 60)) if form in ("cell", "source_r", "source") else 0.0,
-                cur=_value(rng.uniform(-5, 5)) if form in ("supply", "load_i") else 0.0,
+                cur=_value(rng.uniform(0, 5) if form == "load_i" else rng.uniform(-5, 5)) if form in ("supply", "load_i") else 0.0,
             )
         )
     return Network(nodes, nodes[0], tuple(out))
@@ -428,10 +430,11 @@ def test_tellegen_across_two_networks_on_one_graph(net, rnd):
     network with the same graph but different element values also sum to zero."""
     changes = {}
     for b in net.branches:
+        cur = _value(b.cur + rnd.uniform(-5, 5))
         changes[b.name] = {
             "r": b.r * rnd.uniform(0.2, 5.0),
-            "emf": b.emf + rnd.uniform(-10, 10),
-            "cur": b.cur + rnd.uniform(-5, 5),
+            "emf": _value(b.emf + rnd.uniform(-10, 10)),  # the language refuses magnitudes below 1e-100
+            "cur": abs(cur) if b.form == "load_i" else cur,  # and loads that feed the network
         }
     other = net.replace(**changes)
     s1, s2 = net.solve(), other.solve()

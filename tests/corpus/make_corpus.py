@@ -1,6 +1,7 @@
 """Writes the committed corpus of malformed circuit files and the messages they must produce.
 
-    python tests/corpus/make_corpus.py          # rewrites tests/corpus/malformed/ and expected.tsv
+    python tests/corpus/make_corpus.py             # rewrites tests/corpus/malformed/ and expected.tsv
+    python tests/corpus/make_corpus.py --refusals  # rewrites only the REFUSALS files (201 on)
 
 Each file is a demo circuit with one deliberate mistake (or a hand-written ill-posed
 circuit); ``expected.tsv`` holds the error class, line, column and exact message that
@@ -74,6 +75,53 @@ HAND_WRITTEN = {
     "bad-node-name": "cell A a@b gnd emf=12V r=10mOhm\n",
     "equals-twice": "cell A a gnd emf==12V r=10mOhm\n",
     "not-utf8": None,  # written as bytes below
+}
+
+# values that make no physical sense, look-alike characters, limits that name nothing (issue 13).
+# Numbered from 201 and written by --refusals alone: the files before them were made from the
+# demo circuits as they were then, and keep their numbers and messages.
+REFUSALS_FIRST = 201
+_CELL = "cell A a gnd emf=12.6V r=5mOhm\n"
+REFUSALS = {
+    "cable-below-zero-resistance": _CELL + "cable C a gnd length=2m size=10mm2 temp=-250degC\n",
+    "aluminium-below-zero-resistance": _CELL + "cable C a gnd length=2m size=10mm2 metal=al temp=-230degC\n",
+    "cable-molten": _CELL + "cable C a gnd length=2m size=10mm2 temp=1200degC\n",
+    "cable-zero-r-per-length": _CELL + "cable C a gnd length=2m r=0Ohm/m\n",
+    "cable-derived-r-underflows": _CELL + "cable C a gnd length=1e-99m size=1e99mm2\n",
+    "load-negative-current": _CELL + "load L a gnd current=-3A\n",
+    "load-negative-power": _CELL + "load L a gnd power=-30W\n",
+    "subnormal-resistance": _CELL + "resistor R a gnd r=1e-320Ohm\n",
+    "subnormal-after-unit": _CELL + "resistor R a gnd r=1e-95pOhm\n",
+    "literal-reads-as-zero": _CELL + "resistor R a gnd r=1e-400Ohm\n",
+    "product-underflows": _CELL + "resistor R a gnd r=1e-60*1e-60*1Ohm\n",
+    "quotient-underflows": _CELL + "resistor R a gnd r=1Ohm/1e99/1e99\n",
+    "product-overflows": _CELL + "resistor R a gnd r=1e99*1e99*1Ohm\n",
+    "fullwidth-digit": _CELL + "resistor R a gnd r=\uff15Ohm\n",
+    "arabic-indic-digit": _CELL + "resistor R a gnd r=\u0665Ohm\n",
+    "superscript-digit": _CELL + "resistor R a gnd r=\u00b2Ohm\n",
+    "ohm-sign": _CELL + "resistor R a gnd r=5\u2126\n",
+    "greek-mu": _CELL + "resistor R a gnd r=5\u03bcOhm\n",
+    "minus-sign": _CELL + "resistor R a gnd r=\u22125Ohm\n",
+    "en-dash": _CELL + "resistor R a gnd r=1Ohm\u20135mOhm\n",
+    "no-break-space-in-value": _CELL + "resistor R a gnd r=5\u00a0Ohm\n",
+    "zero-width-space": _CELL + "resistor R a gnd r=5\u200bOhm\n",
+    "fullwidth-digit-in-name": _CELL + "resistor R\uff11 a gnd r=5Ohm\n",
+    "fullwidth-gauge": _CELL + "cable C a gnd length=2m gauge=\uff11\uff10\n",
+    "fullwidth-let": "let x = \uff15 Ohm\n" + _CELL + "resistor R a gnd r=x\n",
+    "limit-among-nothing": _CELL + "resistor R a gnd r=1Ohm\nlimit imbalance max=10% among=,\n",
+    "limit-among-unknown": _CELL + "resistor R a gnd r=1Ohm\nlimit imbalance max=10% among=A,X\n",
+    "limit-among-one-element": _CELL + "resistor R a gnd r=1Ohm\nlimit imbalance max=10% among=A\n",
+    "limit-imbalance-without-among": _CELL + "resistor R a gnd r=1Ohm\nlimit imbalance max=10%\n",
+    "limit-of-unknown": _CELL + "resistor R a gnd r=1Ohm\nlimit current max=5A of=RR\n",
+    "limit-node-unknown": _CELL + "resistor R a gnd r=1Ohm\nlimit voltage max=5V from=a to=b\n",
+    "limit-circulating-not-a-bank": _CELL + "resistor R a gnd r=1Ohm\nlimit circulating max=2A among=A\n",
+    "limit-wrong-unit": _CELL + "resistor R a gnd r=1Ohm\nlimit current max=5V of=R\n",
+    "limit-negative-max": _CELL + "resistor R a gnd r=1Ohm\nlimit current max=-5A of=R\n",
+    "limit-min-above-max": _CELL + "resistor R a gnd r=1Ohm\nlimit voltage min=14V max=12V of=R\n",
+    "limit-no-bound": _CELL + "resistor R a gnd r=1Ohm\nlimit current of=R\n",
+    "include-nul": _CELL + 'include "a\x00b.dcn"\n',
+    "diode-below-absolute-zero": _CELL + "diode D a gnd is=1pA temp=-300degC\n",
+    "cell-vmin-above-vmax": "cell A a gnd emf=12.6V r=5mOhm vmin=14V vmax=10V\nload L a gnd r=1Ohm\n",
 }
 
 OPERATORS = [
@@ -170,6 +218,33 @@ def outcome(path: Path):
     return "solved", 0, 0, ""
 
 
+def _row(path: Path, out: Path) -> str | None:
+    cls, line, col, msg = outcome(path)
+    if cls == "solved":
+        return None
+    return "\t".join([path.name, cls, str(line), str(col), msg.replace(str(out) + "/", "").replace("\t", " ")])
+
+
+def refusals() -> int:
+    """(Re)write the REFUSALS files and their rows, leaving every earlier file and row as it is."""
+    out = HERE / "malformed"
+    for old in out.glob("*.dcn"):
+        if int(old.name[:3]) >= REFUSALS_FIRST:
+            old.unlink()
+    lines = (HERE / "expected.tsv").read_text().splitlines()
+    rows = [r for r in lines[1:] if int(r[:3]) < REFUSALS_FIRST]
+    for k, (name, text) in enumerate(REFUSALS.items()):
+        path = out / f"{REFUSALS_FIRST + k:03d}-{name}.dcn"
+        path.write_text(text, encoding="utf-8")
+        row = _row(path, out)
+        if row is None:
+            raise SystemExit(f"{path.name} solved: it belongs in no corpus of malformed files")
+        rows.append(row)
+    (HERE / "expected.tsv").write_text(lines[0] + "\n" + "\n".join(rows) + "\n")
+    print(f"{len(REFUSALS)} refusals, {len(rows)} malformed files")
+    return 0
+
+
 def main() -> int:
     out = HERE / "malformed"
     out.mkdir(exist_ok=True)
@@ -202,4 +277,4 @@ def main() -> int:
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    sys.exit(refusals() if "--refusals" in sys.argv[1:] else main())

@@ -89,6 +89,16 @@ MISTAKES = [
     ("source S a gnd emf=100V\ndiode D a gnd is=1pA\nload L a gnd r=1Ohm\nground gnd\n", E.NumericalError, None, None, "beyond any number the solver can hold", "series resistance"),
     ("", E.InputError, None, None, "no elements", None),
     ("# only a comment\n", E.InputError, None, None, "no elements", None),
+    # issue 13: values of no physical sense and look-alike characters (more in test_refusals.py)
+    (OK_CELL + "cable C a b length=2m size=10mm2 temp=-250degC\n", E.ValueRangeError, 2, 39, "reaches zero resistance", "r= per length"),
+    (OK_CELL + "load L a b current=-3A\n", E.ValueRangeError, 2, 20, "must not be negative", "supply"),
+    (OK_CELL + "resistor R a b r=1e-320Ohm\n", E.ValueRangeError, 2, 18, "too small to be a physical quantity", None),
+    (OK_CELL + "resistor R a b r=1e-60*1e-60*1Ohm\n", E.ValueRangeError, 2, 18, "underflows", None),
+    (OK_CELL + "resistor R a b r=\uff15Ohm\n", E.SyntaxError, 2, 18, "FULLWIDTH DIGIT FIVE", "ASCII digit 5"),
+    (OK_CELL + "resistor R a b r=5\u2126\n", E.SyntaxError, 2, 19, "OHM SIGN", "GREEK CAPITAL LETTER OMEGA"),
+    (OK_CELL + "limit imbalance max=10% among=,\n", E.InputError, 2, 31, "names nothing", None),
+    (OK_CELL + "limit current max=5A of=A2\n", E.UnknownNameError, 2, 25, "'A2', which is not an element", "A1"),
+    (OK_CELL + 'include "x\x00.dcn"\n', E.IncludeError, 2, 9, "control character", None),
 ]
 
 

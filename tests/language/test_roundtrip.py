@@ -11,7 +11,9 @@ from dcnet.language import to_text
 
 node = st.sampled_from(["gnd", "bus+", "bus-", "a1", "s1.top", "n_2", "x-", "7"])
 pos = st.floats(min_value=1e-4, max_value=1e4, allow_nan=False, allow_infinity=False)
-signed = st.floats(min_value=-1e3, max_value=1e3, allow_nan=False, allow_infinity=False)
+# the language refuses non-zero magnitudes below 1e-100 (underflow) and loads that feed the network
+signed = st.floats(min_value=-1e3, max_value=1e3, allow_nan=False, allow_infinity=False).filter(lambda x: x == 0 or abs(x) >= 1e-100)
+drawn = st.floats(min_value=0, max_value=1e3, allow_nan=False, allow_infinity=False).filter(lambda x: x == 0 or x >= 1e-100)
 
 
 @st.composite
@@ -29,7 +31,7 @@ def element_line(draw, i):
         props = f"current={draw(signed)!r}A"
     elif kind == "cable":
         size = draw(st.one_of(st.builds(lambda x: f"size={x!r}mm2", pos), st.sampled_from(["gauge=10", "gauge=4/0", "gauge=1/0", "gauge=14"])))
-        props = f"length={draw(pos)!r}m {size} metal={draw(st.sampled_from(['copper', 'aluminium']))} temp={draw(st.floats(-40, 120))!r}degC"
+        props = f"length={draw(pos)!r}m {size} metal={draw(st.sampled_from(['copper', 'aluminium']))} temp={draw(st.floats(-40, 120).filter(lambda x: x == 0 or abs(x) >= 1e-100))!r}degC"
         if draw(st.booleans()):
             props = f"length={draw(pos)!r}m r={draw(pos)!r}mOhm/m"
     elif kind == "fuse":
@@ -39,7 +41,7 @@ def element_line(draw, i):
     elif kind == "link":
         props = f"r={draw(pos)!r}mOhm" if draw(st.booleans()) else ""
     else:
-        props = draw(st.sampled_from([f"r={draw(pos)!r}Ohm", f"current={draw(signed)!r}A"]))
+        props = draw(st.sampled_from([f"r={draw(pos)!r}Ohm", f"current={draw(drawn)!r}A"]))
     return f"{kind} {name} {a} {b} {props}"
 
 
