@@ -154,6 +154,18 @@ def _read_for_cluster(path: str, options):
         return _refused(path, f"internal fault in dcnet while reading this file: {type(exc).__name__}: {exc}", INTERNAL)
 
 
+def _warm_up(options) -> None:
+    """Solve a two-element circuit here before worker processes are forked from this one: they
+    start with the solver's modules imported, instead of each importing them (about half a
+    second), which matters most for the fresh workers that retry the files of a dead one."""
+    from .commands.common import solve_one
+
+    try:
+        solve_one("warm-up.dcn", options, text="cell A a gnd emf=12V r=1Ohm\nload L a gnd r=10Ohm\nground gnd\n")
+    except Exception:  # noqa: BLE001 - only a head start
+        pass
+
+
 def run_files(files: list[str], options, *, mode: str = "solve", show=(), result: bool = False, jobs=None, cluster=None, progress=True,
               cluster_timeout=None) -> list[dict]:
     """Records of every file, in order, from the runner that ``jobs``/``cluster`` select."""
@@ -182,6 +194,8 @@ def run_files(files: list[str], options, *, mode: str = "solve", show=(), result
     try:
         if runner is None:
             runner = make_runner(jobs, cluster, len(items), cluster_timeout)
+        if getattr(runner, "forks", False):
+            _warm_up(options)
         # small tasks of several files: fewer round trips, still an even spread over the workers
         workers = getattr(runner, "jobs", 4)
         batch = max(1, min(64, len(items) // (8 * workers) or 1))

@@ -134,19 +134,29 @@ def _worker_start(study=None) -> None:
 
 
 def _death(procs) -> str:
-    """How a worker process of ``procs`` ended, in words ("signal 9", "exit status 3"), or ''."""
+    """How a worker process of ``procs`` ended, in words ("signal 9, SIGKILL: out of memory?",
+    "exit status 3"), or ''. The pool itself ends the other workers with SIGTERM once one
+    died, so another ending is preferred to SIGTERM."""
     import signal
 
+    deadline = time.monotonic() + 1.0
+    codes = []
     for p in procs:
-        code = p.exitcode
-        if code is not None and code < 0:
+        try:
+            p.join(max(0.0, deadline - time.monotonic()))  # a dead worker is reaped a moment after its pool knows
+        except (OSError, ValueError, AssertionError):
+            pass
+        if p.exitcode:
+            codes.append(p.exitcode)
+    codes.sort(key=lambda c: c == -signal.SIGTERM)
+    for code in codes:
+        if code < 0:
             try:
                 name = signal.Signals(-code).name
             except ValueError:
                 name = "?"
             return f"signal {-code}, {name}" + (": out of memory?" if -code == signal.SIGKILL else "")
-        if code:
-            return f"exit status {code}"
+        return f"exit status {code}"
     return ""
 
 
@@ -175,6 +185,9 @@ def _stop(pool, procs) -> None:
                 p.join(1.0)
         except (OSError, ValueError, AttributeError, AssertionError):
             pass
+    manager = getattr(pool, "_executor_manager_thread", None)
+    if manager is not None:  # once it is gone this process has one thread again, and the next pool may fork
+        manager.join(1.0)
 
 
 def _lost(item, why: str, lost):
@@ -220,11 +233,14 @@ class PoolRunner:
     def __init__(self, jobs: int):
         self.jobs = max(1, int(jobs))
         self.name = f"{self.jobs} local worker processes"
+        self._ctx = self._context()
+        self.forks = self._ctx.get_start_method() == "fork"  # workers start with this process's modules
 
     def _context(self):
         """fork when this process has one thread (workers start at once); with other threads
         alive (a Dask client, a host application) a fork could copy a lock in use, so the
-        workers come from a fork server instead."""
+        workers come from a fork server instead. Decided once, when the runner is made: the
+        only threads this runner adds are its own pools' (which hold no lock a worker needs)."""
         import multiprocessing as mp
         import threading
 
@@ -237,7 +253,7 @@ class PoolRunner:
         from concurrent.futures import ProcessPoolExecutor
 
         return ProcessPoolExecutor(
-            max_workers=max(1, min(self.jobs, workers)), mp_context=self._context(), initializer=_worker_start, initargs=(study,)
+            max_workers=max(1, min(self.jobs, workers)), mp_context=self._ctx, initializer=_worker_start, initargs=(study,)
         )
 
     def map(self, fn, items, args=(), progress=None, batch: int = 1, lost=None):
@@ -465,7 +481,9 @@ class DaskRunner:
                     try:
                         out = fut.result()
                     except KilledWorker as exc:
-                        lost.append((k, f"its worker died each time it ran it: {exc}"))
+                        tries = getattr(exc, "allowed_failures", None)
+                        n = tries + 1 if isinstance(tries, int) else 0
+                        lost.append((k, f"{n or 'several'} Dask worker{'' if n == 1 else 's'} died running it: out of memory?"))
                         continue
                     on_result(k, out)
         except RunError:
@@ -503,19 +521,24 @@ class DaskRunner:
 
             return on_result
 
-        for _ in range(2):  # tasks of `batch` items; then what a dead worker took, one item per task
-            futures = [self.client.submit(_call_batch, fn, [items[i] for i in t], args, pure=False) for t in tasks]
-            dead = self._collect(futures, keep(tasks))
-            if not dead:
-                return results
-            if all(len(tasks[k]) == 1 for k, _ in dead):
-                break
+        def run(task_list):
+            futures = [self.client.submit(_call_batch, fn, [items[i] for i in t], args, pure=False) for t in task_list]
+            return self._collect(futures, keep(task_list))
+
+        # 1. tasks of `batch` items; 2. what dead workers took with them, one item per task
+        dead = run(tasks)
+        if dead and size > 1:
             tasks = [[i] for k, _ in dead for i in tasks[k]]
+            dead = run(tasks)
         for k, why in dead:
-            i = tasks[k][0]
-            results[i] = _lost(items[i], why, lost)
-            if progress:
-                progress.advance()
+            # 3. each item that was on a dying worker, alone on the cluster: the culprit dies again
+            task = [tasks[k]]
+            again = run(task)
+            if again:
+                i = task[0][0]
+                results[i] = _lost(items[i], again[0][1] or why, lost)
+                if progress:
+                    progress.advance()
         return results
 
     def run_study(self, study, tasks, progress=None):
