@@ -422,6 +422,9 @@ class DaskRunner:
             raise InputError("--cluster needs dask's distributed scheduler", hint='install it with: pip install "dcnet[cluster]"') from None
         _check_address(address)
         _probe(address, timeout)
+        import logging
+
+        logging.getLogger("distributed.client").setLevel(logging.CRITICAL)  # its tracebacks: dcnet says what failed itself
         import dask
         from distributed import Client
 
