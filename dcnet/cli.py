@@ -1,7 +1,9 @@
 """The ``dcnet`` command line: a thin face over the Python API.
 
 Exit codes: 0 done and every check passed; 1 done but a check failed; 2 bad input or an
-unsolvable circuit (with ``file:line:col`` and a hint, never a traceback).
+unsolvable circuit (with ``file:line:col`` and a hint, never a traceback); 130 interrupted
+(Ctrl-C, SIGINT) and 143 terminated (SIGTERM): the run stops at once, worker processes are
+ended, and no output file is written or left half-written.
 
 Each command lives in ``dcnet/commands/<name>.py``. Only light modules are imported on the
 way to a command; commands that need heavy libraries (sympy, plotting) import them inside
@@ -35,7 +37,8 @@ def _parser() -> argparse.ArgumentParser:
     p = _Parser(
         prog="dcnet",
         description="Solve DC battery networks exactly from dcnet circuit files (.dcn).",
-        epilog="Exit codes: 0 ok, 1 a check failed, 2 bad input or unsolvable circuit.",
+        epilog="Exit codes: 0 ok, 1 a check failed, 2 bad input or unsolvable circuit, "
+        "130 interrupted (Ctrl-C), 143 terminated (SIGTERM); an interrupted run writes no output.",
     )
     p.add_argument("--version", action="version", version=f"dcnet {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND")  # subcommands' parsers are _Parser too
@@ -44,14 +47,29 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, raised where the program is, so that it unwinds as for Ctrl-C: worker
+    processes are ended and temporary output files removed."""
+
+
+def _on_sigterm(signum, frame):
+    raise Terminated()
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = _parser()
     args = parser.parse_args(argv)
     if args.command is None:
         parser.print_help()
         return EXIT_BAD_INPUT
+    import signal
+
     from .floating import as_error, is_floating_point_warning, refused
 
+    try:
+        before = signal.signal(signal.SIGTERM, _on_sigterm)
+    except ValueError:  # not the main thread (an embedding application): its own handlers stay
+        before = None
     try:
         try:
             with refused():  # numpy's floating-point warnings become dcnet's error (dcnet/floating.py)
@@ -63,11 +81,15 @@ def main(argv: list[str] | None = None) -> int:
     except DcnetError as err:
         print(f"dcnet: {err.render()}", file=sys.stderr)
         return EXIT_BAD_INPUT
-    except KeyboardInterrupt:
-        print("dcnet: interrupted", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:
+        term = isinstance(exc, Terminated)
+        print("dcnet: terminated (SIGTERM)" if term else "dcnet: interrupted", file=sys.stderr)
+        return 143 if term else 130
     except BrokenPipeError:
         return EXIT_OK
+    finally:
+        if before is not None:
+            signal.signal(signal.SIGTERM, before)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -25,6 +25,7 @@ __all__ = [
     "NumericalError",
     "ConvergenceError",
     "NoOperatingPointError",
+    "RunError",
     "DcnetWarning",
 ]
 
@@ -185,6 +186,10 @@ class ConvergenceError(NumericalError):
 
 class NoOperatingPointError(NumericalError):
     """A nonlinear circuit has no operating point (e.g. a constant-power demand above what the network can deliver)."""
+
+
+class RunError(DcnetError):
+    """The work could not be carried out where it was sent (a worker died, a cluster was lost)."""
 
 
 class DcnetWarning(UserWarning):

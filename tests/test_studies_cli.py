@@ -150,8 +150,9 @@ def test_sweep_of_a_cable_size_is_batched_and_exact(capsys):
 
 
 def test_jobs_must_be_positive(capsys):
-    code, _, err = run(capsys, "spread", SHED, "--samples", "10", "--jobs", "0")
-    assert code == 2 and "give at least 1 worker process" in err
+    with pytest.raises(SystemExit) as exc:  # refused with the usage, before the file is read
+        run(capsys, "spread", SHED, "--samples", "10", "--jobs", "0")
+    assert exc.value.code == 2 and "give at least 1 worker process" in capsys.readouterr().err
 
 
 def test_python_api_sweep_and_spread():

@@ -50,7 +50,7 @@ def run(args) -> int:
     if len(files) > 1 or args.format == "jsonl":
         from ..folders import run_files
 
-        records = run_files(files, opts, mode="check", jobs=args.jobs, cluster=args.cluster)
+        records = run_files(files, opts, mode="check", jobs=args.jobs, cluster=args.cluster, cluster_timeout=args.cluster_timeout)
     else:
         from ..folders import solve_record
 

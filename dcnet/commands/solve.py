@@ -128,7 +128,8 @@ def _solve_many(files, opts, args, out) -> int:
     from ..report import text as rt
 
     records = run_files(
-        files, opts, show=args.show or (), result=args.format == "json", jobs=args.jobs, cluster=args.cluster
+        files, opts, show=args.show or (), result=args.format == "json", jobs=args.jobs, cluster=args.cluster,
+        cluster_timeout=args.cluster_timeout,
     )
     counts = {"ok": 0, "check failed": 0, "refused": 0}
     worst = EXIT_OK

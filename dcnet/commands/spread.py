@@ -101,7 +101,7 @@ def run(args) -> int:
     for w in study.nominal_solution.warnings:
         say(f"dcnet: warning: {args.file}: {w}")
     bar = Progress(args.samples, "samples")
-    runner = make_runner(args.jobs, args.cluster, -(-args.samples // study.chunk_size()))
+    runner = make_runner(args.jobs, args.cluster, -(-args.samples // study.chunk_size()), args.cluster_timeout)
     try:
         result = study.run(values, runner, bar)
     finally:

@@ -132,7 +132,7 @@ def run(args) -> int:
         say(f"dcnet: warning: {args.file}: {w}")
     n = len(next(iter(values.values())))
     bar = Progress(n, "points")
-    runner = make_runner(args.jobs, args.cluster, -(-n // study.chunk_size()))
+    runner = make_runner(args.jobs, args.cluster, -(-n // study.chunk_size()), args.cluster_timeout)
     try:
         result = study.run(values, runner, bar)
     finally:
