@@ -303,7 +303,10 @@ def prospective(net, s, points: list[tuple[int, np.ndarray, int | None]]):
     from ..analysis.mna import Factor
 
     bt = s.branches
-    returns_all = np.unique(np.concatenate([np.asarray(rr, dtype=np.int64) for _t, rr, _k in points])) if points else np.zeros(0, dtype=np.int64)
+    seen = np.zeros(bt.n_nodes, dtype=bool)
+    for _t, rr, _k in points:
+        seen[rr] = True
+    returns_all = np.flatnonzero(seen)
     if not s.nonlinear:
         rows_full = s.rows
         row, N, vb = rows_full
@@ -453,6 +456,7 @@ def rules(net, s) -> list[Series]:
     bt = s.branches
     labels = s.sections.labels
     idx = net.node_index
+    nodes = net.nodes
     points = []
     meta = []
     fuse_nodes = {idx[nd] for el in fuses for nd in el.nodes}
@@ -483,7 +487,7 @@ def rules(net, s) -> list[Series]:
         if kind == "fuse":
             prev = best.get(a.name)
             if prev is None:
-                best[a.name] = (a, val, i_f, np.array([b] * s.n, dtype=object), np.array([net.nodes[rr[j]] for j in worst], dtype=object))
+                best[a.name] = (a, val, i_f, np.array([b] * s.n, dtype=object), np.array([nodes[rr[j]] for j in worst], dtype=object))
             else:
                 take = val > prev[1]
                 best[a.name] = (
@@ -491,7 +495,7 @@ def rules(net, s) -> list[Series]:
                     np.where(take, val, prev[1]),
                     np.where(take, i_f, prev[2]),
                     np.where(take, b, prev[3]),
-                    np.where(take, np.array([net.nodes[rr[j]] for j in worst], dtype=object), prev[4]),
+                    np.where(take, np.array([nodes[rr[j]] for j in worst], dtype=object), prev[4]),
                 )
         else:
             detail = f"bolted fault from {b['pos']} to {b['neg']}" if s.single else ""

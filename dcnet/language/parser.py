@@ -476,12 +476,17 @@ def _property_hint(src: str, column: int):
 
 
 # ------------------------------------------------------------------ entry
+#: a line holding only blanks and/or a comment (and a ``\r`` before its end): emptied before
+#: lexing, so that such lines cost one character of a newline run each (their line numbers stay)
+_EMPTY_LINE = re.compile(r"^(?:[ \t]*#[^\n]*|[ \t]+\r?|\r)$", re.M)
+
+
 def parse_statements(text: str, file: str = "<text>") -> list[Statement]:
     """Parse a whole circuit text into statements (values kept raw)."""
     if not text.endswith("\n"):
         text += "\n"
     try:
-        return _parser().parse(text, start="file")
+        return _parser().parse(_EMPTY_LINE.sub("", text), start="file")
     except UnexpectedInput as exc:
         err = _syntax_error(exc, text, file)
     except VisitError as exc:  # pragma: no cover - transformer bugs surface as ours
