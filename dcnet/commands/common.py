@@ -25,6 +25,8 @@ def options(args):
         max_include_depth=args.max_include_depth,
         max_expression_depth=args.max_expression_depth,
         max_block_depth=args.max_block_depth,
+        max_includes=args.max_includes,
+        max_total_bytes=args.max_total_bytes,
         allow_outside=args.allow_outside_includes,
     )
 
@@ -47,6 +49,8 @@ def add_input_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--max-include-depth", type=int, default=d.max_include_depth, metavar="N", help=f"deepest nesting of includes (default {d.max_include_depth})")
     g.add_argument("--max-expression-depth", type=int, default=d.max_expression_depth, metavar="N", help=f"deepest nesting of a value expression (default {d.max_expression_depth})")
     g.add_argument("--max-block-depth", type=int, default=d.max_block_depth, metavar="N", help=f"deepest nesting of block instances (default {d.max_block_depth})")
+    g.add_argument("--max-includes", type=int, default=d.max_includes, metavar="N", help=f"most includes followed for one circuit, each inclusion counted (default {d.max_includes:,})")
+    g.add_argument("--max-total-bytes", type=int, default=d.max_total_bytes, metavar="N", help=f"most bytes read for one circuit, every file and inclusion counted (default {d.max_total_bytes:,})")
     g.add_argument("--allow-outside-includes", action="store_true", help="follow includes that leave the circuit file's folder")
 
 
