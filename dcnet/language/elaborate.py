@@ -116,6 +116,8 @@ class _State:
     const_cache: dict[str, Quantity] = field(default_factory=dict)
     include_stack: list[Path] = field(default_factory=list)
     includes: int = 0  # include statements counted so far (before any is followed)
+    instances: int = 0  # block instances expanded so far
+    block_sizes: dict[str, tuple[int, int]] = field(default_factory=dict)  # block -> (elements at least, instances)
     bytes_read: int = 0  # bytes of every file read so far, every inclusion counted
     blocks: dict[str, _Block] = field(default_factory=dict)
     scope: _Scope = field(default_factory=_Scope)
@@ -434,6 +436,8 @@ def _use(st: _State, s: Statement, file: str) -> None:
             span=span,
             hint="raise the limit with --max-block-depth if the file is trusted",
         )
+    _check_block_size(st, inst, block, span)
+    st.instances += 1
     # parameters: the block's own let names, overridden by key=value on the use line
     params = {b.args[0]: b for b in block.body if b.what == "let"}
     overrides: dict[str, Quantity] = {}
@@ -474,6 +478,77 @@ def _use(st: _State, s: Statement, file: str) -> None:
                 raise
     finally:
         st.scope = scope
+
+
+def _check_block_size(st: _State, inst: str, block: _Block, span: Span) -> None:
+    """Refuse an instance before expanding it when the elements it adds at least (or the block
+    instances it makes) would pass the element limit: a fan-out of blocks (A uses ten B, B ten
+    C ...) is refused at its first use line, not after expanding millions of elements."""
+    elements, instances = _block_size(st, block.name, ())
+    limit = st.options.max_elements
+    have = len(st.net.elements)
+    where = f"use {inst} of block {block.name}"
+    if have + elements > limit:
+        raise LimitError(
+            f"{where} expands to at least {elements:,} elements" + (f", with the {have:,} before it {have + elements:,}" if have else "")
+            + f", above the limit of {limit:,} elements",
+            span=span,
+            hint="raise the limit with --max-elements if the file is trusted",
+        )
+    if st.instances + instances > limit:
+        raise LimitError(
+            f"{where} makes {instances:,} block instances" + (f", with the {st.instances:,} before it {st.instances + instances:,}" if st.instances else "")
+            + f", above the limit of {limit:,} (block instances count against the element limit)",
+            span=span,
+            hint="raise the limit with --max-elements if the file is trusted",
+        )
+
+
+def _block_size(st: _State, name: str, chain: tuple[str, ...]) -> tuple[int, int]:
+    """(elements at least, block instances) of one instance of block ``name``, counted from its
+    body without expanding it, once per block. A bank whose counts are plain numbers counts
+    exactly; one whose counts use let values counts as one element (at least)."""
+    memo = st.block_sizes.get(name)
+    if memo is not None:
+        return memo
+    block = st.blocks.get(name)
+    if block is None or name in chain:
+        return 0, 0  # an unknown block or a block that uses itself: its use line says so
+    elements, instances, exact = 0, 1, True
+    for b in block.body:
+        if b.what == "element":
+            elements += _bank_size(st, b) if b.args and b.args[0] == "bank" else 1
+        elif b.what == "use" and len(b.args) > 1:
+            if b.args[1] not in st.blocks or b.args[1] in chain + (name,):
+                exact = False
+            e, n = _block_size(st, b.args[1], chain + (name,))
+            elements += e
+            instances += n
+    if exact:
+        st.block_sizes[name] = (elements, instances)
+    return elements, instances
+
+
+def _bank_size(st: _State, s: Statement) -> int:
+    """The elements a bank statement expands to, when its counts are plain numbers; else 1."""
+    from .banks import element_count
+
+    counts = {}
+    for p in s.props:
+        if p.key in ("series", "parallel"):
+            try:
+                tree = parse_value(p.raw, _value_span("", p))
+                if names_in(tree[1]) - _unit_names(tree[1]) or tree[2] is not None:
+                    return 1
+                x = evaluate(tree[1], {}).value
+            except (DcnetError, ExpressionProblem):
+                return 1
+            if not (x >= 1 and x == int(x) and x <= 100_000):
+                return 1
+            counts[p.key] = int(x)
+    if len(counts) != 2:
+        return 1
+    return element_count(counts["series"], counts["parallel"], {p.key for p in s.props})
 
 
 def _let(st: _State, s: Statement, file: str) -> None:
