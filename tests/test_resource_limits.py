@@ -64,3 +64,13 @@ def test_a_block_fan_out_is_refused_at_its_use_line(monkeypatch):
         dcnet.parse("\n".join(lines) + "\n")
     assert "10,000,000 elements" in exc.value.message  # 10^7 resistors
     assert exc.value.span.line == len(lines)
+
+
+def test_a_sweep_grid_and_a_spread_beyond_the_sample_limit_are_refused(capsys):
+    from dcnet.cli import main
+
+    assert main(["sweep", "circuits/shed-bank-spread.dcn", "--vary", "r_mono=1mOhm..10mOhm:10000", "--vary", "emf_mono=12V..13V:10000", "--show", "r_mono"]) == 2
+    err = capsys.readouterr().err
+    assert "100,000,000" in err and "--max-samples" in err  # 10,000 x 10,000
+    assert main(["spread", "circuits/shed-bank-spread.dcn", "--samples", "50000000"]) == 2
+    assert "--max-samples" in capsys.readouterr().err

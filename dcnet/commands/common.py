@@ -39,6 +39,22 @@ def add_fault_option(p: argparse.ArgumentParser) -> None:
     )
 
 
+DEFAULT_MAX_SAMPLES = 1_000_000
+
+
+def add_samples_limit(p: argparse.ArgumentParser) -> None:
+    """``--max-samples`` of the studies (sweep points, spread samples), judged before any work."""
+    p.add_argument("--max-samples", type=int, default=DEFAULT_MAX_SAMPLES, metavar="N", help=f"most points of a sweep or samples of a spread (default {DEFAULT_MAX_SAMPLES:,})")
+
+
+def check_samples(args, n: int, what: str) -> None:
+    """Refuse a study of more than ``--max-samples`` points before anything is drawn or solved."""
+    from ..errors import LimitError
+
+    if n > args.max_samples:
+        raise LimitError(f"{what} make {n:,}, above the limit of {args.max_samples:,}", hint="raise it with --max-samples if you mean it")
+
+
 def add_input_options(p: argparse.ArgumentParser) -> None:
     from ..language import Options
 
