@@ -74,3 +74,23 @@ def test_a_sweep_grid_and_a_spread_beyond_the_sample_limit_are_refused(capsys):
     assert "100,000,000" in err and "--max-samples" in err  # 10,000 x 10,000
     assert main(["spread", "circuits/shed-bank-spread.dcn", "--samples", "50000000"]) == 2
     assert "--max-samples" in capsys.readouterr().err
+
+
+def test_a_cycle_with_a_tiny_step_is_refused_before_any_solve(monkeypatch):
+    import dcnet.analysis.cycle as cyc
+
+    monkeypatch.setattr(cyc, "branch_table", lambda *a: (_ for _ in ()).throw(AssertionError("solved")), raising=False)
+    net = dcnet.load("circuits/cabin-cycle.dcn")
+    with pytest.raises(LimitError) as exc:
+        cyc.run(net, step=1e-3)
+    assert "21,600,000 steps" in exc.value.message  # 6 h / 1 ms
+    assert "--max-steps" in exc.value.hint and exc.value.span is not None
+
+
+def test_a_condition_phase_without_max_is_bounded_by_the_default_limit():
+    from dcnet.analysis.cycle import DEFAULT_MAX, Phase, planned_steps
+
+    ph = Phase.from_values("charge", {"soc_above": 0.95})
+    with pytest.raises(LimitError):
+        planned_steps([ph], 1.0, max_steps=int(DEFAULT_MAX) - 1)
+    assert planned_steps([ph], 1.0, max_steps=int(DEFAULT_MAX)) == int(DEFAULT_MAX)  # 100 h of 1 s steps
