@@ -192,6 +192,8 @@ class _Response:
 
     def at(self, key, nodes) -> np.ndarray:
         """Potentials at ``nodes`` for the unit of column ``key`` (S, len(nodes)); ground is 0."""
+        if key not in self.cols:  # (a diode's own row, when the fault makes it conduct)
+            self.need([key])
         col = self.cols[key]
         u = self.row[nodes]
         out = np.where(u >= 0, col[:, np.maximum(u, 0)], 0.0)
@@ -259,6 +261,7 @@ class _Response:
                 unit_t = self.at(("b", k), np.array([t]))
                 unit_r = self.at(("b", k), returns)
             else:
+                self.need([("n", t)])
                 unit_t = self.cols[("n", t)][:, j][:, None]
                 self.need([("n", int(r)) for r in returns])
                 unit_r = np.stack([self.cols[("n", int(r))][:, j] for r in returns], axis=1)
