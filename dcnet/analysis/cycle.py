@@ -424,7 +424,35 @@ def _crossed(cond: Condition, value: float) -> bool:
     return value >= cond.threshold if cond.sense == "above" else value <= cond.threshold
 
 
-def run(net, phases: list[Phase] | None = None, *, step: float | None = None, force_refactor: bool = False, progress: bool = False) -> CycleResult:
+#: most time steps of one cycle (dcnet cycle --max-steps)
+MAX_STEPS = 500_000
+
+
+def planned_steps(phases, step: float | None, max_steps: int = MAX_STEPS) -> int:
+    """The steps a schedule may take at its longest step (a phase's for=, or its max=, or the
+    default limit, over its step), refused up front when above ``max_steps``."""
+    from ..errors import LimitError
+
+    total = 0
+    for ph in phases:
+        limit = ph.duration if ph.duration is not None else (ph.max_time if ph.max_time is not None else DEFAULT_MAX)
+        hmax = ph.step or step or DEFAULT_STEP
+        n = int(np.ceil(limit / hmax))
+        total += n
+        if total > max_steps:
+            how = "for=" if ph.duration is not None else ("max=" if ph.max_time is not None else f"the default limit of {DEFAULT_MAX / 3600:g} h (no max=)")
+            raise LimitError(
+                f"phase {ph.label}: {limit:g} s ({how}) in steps of {hmax:g} s is {n:,} steps; the schedule up to it {total:,}, "
+                f"above the limit of {max_steps:,} steps",
+                span=ph.span,
+                hint="raise it with --max-steps, or take a longer step (--step, or step= on the phase), or a shorter max=",
+            )
+    return total
+
+
+def run(
+    net, phases: list[Phase] | None = None, *, step: float | None = None, force_refactor: bool = False, progress: bool = False, max_steps: int = MAX_STEPS
+) -> CycleResult:
     """Run a schedule (the file's phases by default) and return the series and ledger."""
     from .branches import branch_table
 
@@ -437,6 +465,7 @@ def run(net, phases: list[Phase] | None = None, *, step: float | None = None, fo
         )
     for ph in phases:
         ph.check_names(net)
+    planned_steps(phases, step, max_steps)
     bt = branch_table(net)
     cells = _Cells(net, bt)
     if cells.n == 0:
@@ -478,6 +507,15 @@ def run(net, phases: list[Phase] | None = None, *, step: float | None = None, fo
                 limit = 0.0
         emptied = False
         while t - t_start < limit - 1e-9:
+            if len(times) >= max_steps:  # steps shortened to hold the state of charge's change
+                from ..errors import LimitError
+
+                raise LimitError(
+                    f"phase {ph.label}: the cycle took {len(times):,} steps (shortened so that no state of charge moves more "
+                    f"than {MAX_SOC_STEP * 100:g} % in one), the limit of {max_steps:,}",
+                    span=ph.span,
+                    hint="raise it with --max-steps",
+                )
             icell = i[cells.pos]
             rate = cells.dsoc_dt(icell, soc)
             draining = rate < 0

@@ -113,42 +113,134 @@ def _rhs(bt, rows, c, e, is_voltage, vb) -> np.ndarray:
     return z
 
 
-class _Response:
-    """Open-circuit solution and unit responses of one fault-state network (samples x ...)."""
+#: unit right-hand sides solved together (SuperLU's block solve slows down sharply for wide blocks)
+CHUNK = 64
 
-    def __init__(self, bt, rows, X: np.ndarray, cols: np.ndarray, g: np.ndarray, c: np.ndarray, is_voltage: np.ndarray):
+
+class _Response:
+    """Open-circuit solution and unit responses of one fault-state network (samples x ...).
+
+    A unit response is a column of the inverse of the network's matrix: the potentials (and
+    branch currents) when a unit current is injected at one node (or a unit voltage put in one
+    ideal branch's row). Columns are solved on demand, a block at a time (:meth:`need`), and
+    dropped when no longer needed (:meth:`forget`), so memory stays proportional to the
+    network times :data:`CHUNK`, whatever the number of fuses.
+
+    The matrix of every network made of two-terminal branches is symmetric (each stamp is a
+    symmetric pair, see ``analysis.mna.triplets``; pinning islands adds to the diagonal only),
+    so the potential at x for a unit at y is the potential at y for a unit at x: the transfer
+    impedance between a fuse terminal t and every return point r comes from t's own column,
+    and only the return points' own impedances (the diagonal, :meth:`diagonal`) need theirs.
+    ``symmetric=False`` (a matrix that is not) takes every return point's column instead.
+    """
+
+    def __init__(self, bt, rows, solve, x_oc: np.ndarray, g: np.ndarray, c: np.ndarray, is_voltage: np.ndarray, symmetric: bool = True):
         row, N, vb = rows
-        self.N, self.vb = N, vb
+        self.row, self.N, self.vb = row, N, vb
+        self.m = N + len(vb)
         self.vpos = {int(p): j for j, p in enumerate(vb)}
-        S = X.shape[0]
-        n = bt.n_nodes
-        mask = row >= 0
-        pot = np.zeros((S, n, X.shape[2]))
-        pot[:, mask, :] = X[:, row[mask], :]
-        self.pot_oc = pot[:, :, 0]  # (S, n)
-        self.P = pot[:, :, 1:]  # (S, n, k): node potentials per unit injection at cols[k]
-        self.X = X
-        self.col = {int(nd): k for k, nd in enumerate(cols)}
+        self.solve = solve  # B (unknowns x k) -> (samples, unknowns, k)
         self.bt, self.g, self.c, self.is_voltage = bt, np.atleast_2d(g), np.atleast_2d(c), is_voltage
+        self.X0 = x_oc  # (S, unknowns)
+        self.pot_oc = self._potentials(x_oc[:, :, None])[:, :, 0]  # (S, n)
+        self.symmetric = symmetric
+        self.cols: dict[tuple[str, int], np.ndarray] = {}  # key -> (S, unknowns)
+        self.diag = np.zeros((x_oc.shape[0], bt.n_nodes))
+        self._diag_done = np.zeros(bt.n_nodes, dtype=bool)
+
+    def _potentials(self, X: np.ndarray) -> np.ndarray:
+        S, _, k = X.shape
+        pot = np.zeros((S, self.bt.n_nodes, k))
+        mask = self.row >= 0
+        pot[:, mask, :] = X[:, self.row[mask], :]
+        return pot
+
+    def _unknown(self, key) -> int:
+        kind, x = key
+        return int(self.row[x]) if kind == "n" else self.N + self.vpos[x]
+
+    def _solve_block(self, keys) -> np.ndarray:
+        B = np.zeros((self.m, len(keys)))
+        for j, key in enumerate(keys):
+            u = self._unknown(key)
+            if u >= 0:
+                B[u, j] = 1.0
+        return self.solve(B)
+
+    def need(self, keys) -> None:
+        """Solve the columns of ``keys`` (("n", node) or ("b", element)) not held yet, a block at a time."""
+        todo = [k for k in dict.fromkeys(keys) if k not in self.cols]
+        for s in range(0, len(todo), CHUNK):
+            part = todo[s : s + CHUNK]
+            X = self._solve_block(part)
+            for j, key in enumerate(part):
+                self.cols[key] = X[:, :, j]
+
+    def forget(self) -> None:
+        self.cols.clear()
+
+    def diagonal(self, nodes) -> None:
+        """Each node's own response (its impedance to ground), solved a block at a time and only kept on the diagonal."""
+        todo = [int(x) for x in np.unique(np.asarray(nodes, dtype=np.int64)) if not self._diag_done[x]]
+        for s in range(0, len(todo), CHUNK):
+            part = todo[s : s + CHUNK]
+            X = self._solve_block([("n", x) for x in part])
+            for j, x in enumerate(part):
+                u = self.row[x]
+                self.diag[:, x] = X[:, u, j] if u >= 0 else 0.0
+            self._diag_done[part] = True
+
+    def at(self, key, nodes) -> np.ndarray:
+        """Potentials at ``nodes`` for the unit of column ``key`` (S, len(nodes)); ground is 0."""
+        if key not in self.cols:  # (a diode's own row, when the fault makes it conduct)
+            self.need([key])
+        col = self.cols[key]
+        u = self.row[nodes]
+        out = np.where(u >= 0, col[:, np.maximum(u, 0)], 0.0)
+        if self._unknown(key) < 0:
+            out = np.zeros_like(out)
+        return out
+
+    def cross(self, x: int, returns: np.ndarray) -> np.ndarray:
+        """Potential at node x for a unit at each return point (S, R)."""
+        if self.symmetric:
+            return self.at(("n", x), returns)
+        self.need([("n", int(r)) for r in returns])
+        return np.stack([self.at(("n", int(r)), np.array([x]))[:, 0] for r in returns], axis=1)
+
+    def keys_for(self, t: int, k: int | None) -> list:
+        """The columns a point needs: its terminal, and the watched element's nodes or row."""
+        keys = [("n", t)]
+        if k is not None:
+            keys += [("n", int(self.bt.a[k])), ("n", int(self.bt.b[k]))]
+            if self.is_voltage[k]:
+                kk = k if k in self.vpos else int(self.bt.representative[k])
+                if kk in self.vpos:
+                    keys.append(("b", kk))
+        return keys
 
     def pairs(self, t: int, returns: np.ndarray):
-        """(fault current (S, R), unit-response difference w (S, n, R)) of faults t -> each return."""
-        ti = self.col[t]
-        ri = np.array([self.col[int(r)] for r in returns], dtype=np.int64)
-        w = self.P[:, :, ti][:, :, None] - self.P[:, :, ri]  # (S, n, R)
-        Z = w[:, t, :] - w[:, returns, np.arange(len(returns))]
+        """(fault current (S, R), the fault's terminal, its return points) of faults t -> each return."""
+        p_tt = self.at(("n", t), np.array([t]))  # (S, 1)
+        p_rt = self.at(("n", t), returns)  # potential at r for a unit at t
+        p_tr = p_rt if self.symmetric else self.cross(t, returns)
+        Z = p_tt - p_tr - p_rt + self.diag[:, returns]
         voc = self.pot_oc[:, t][:, None] - self.pot_oc[:, returns]
         with np.errstate(divide="ignore", invalid="ignore"):
             tiny = Z <= 1e-15 * np.maximum(1.0, np.abs(voc))
             i_f = np.where(tiny, np.where(voc != 0, np.inf, 0.0), voc / np.where(tiny, 1.0, Z))
-        return i_f, w, ti, ri
+        return i_f, t, returns
 
-    def branch_during(self, k: int, i_f, w, ti, ri):
+    def _w(self, x: int, t: int, returns: np.ndarray) -> np.ndarray:
+        """Potential at x per unit of fault current from t into each return point (S, R)."""
+        return self.at(("n", t), np.array([x])) - self.cross(x, returns)
+
+    def branch_during(self, k: int, i_f, t, returns):
         """Voltage and current of element k during each fault (S, R)."""
         bt = self.bt
-        a, b = bt.a[k], bt.b[k]
+        a, b = int(bt.a[k]), int(bt.b[k])
         v_oc = self.pot_oc[:, a] - self.pot_oc[:, b]
-        dw = w[:, a, :] - w[:, b, :]
+        dw = self._w(a, t, returns) - self._w(b, t, returns)
         fin = np.isfinite(i_f)
         i_s = np.where(fin, i_f, 0.0)
         v = v_oc[:, None] - i_s * dw
@@ -158,13 +250,22 @@ class _Response:
             rep = int(bt.representative[k])
             count = int((bt.representative == rep).sum())
             way = 1.0 if bt.a[k] == bt.a[rep] else -1.0
-            v_r, i_r = self.branch_during(rep, i_f, w, ti, ri)
+            v_r, i_r = self.branch_during(rep, i_f, t, returns)
             return v, way * i_r / count
         if self.is_voltage[k]:
             j = self.N + self.vpos[k]
-            i_oc = self.X[:, j, 0]
-            unit = self.X[:, j, 1:]
-            i = i_oc[:, None] - i_s * (unit[:, ti][:, None] - unit[:, ri])
+            i_oc = self.X0[:, j]
+            # the branch current for a unit at node x is, by symmetry, the potential at x for a
+            # unit in the branch's row
+            if self.symmetric:
+                unit_t = self.at(("b", k), np.array([t]))
+                unit_r = self.at(("b", k), returns)
+            else:
+                self.need([("n", t)])
+                unit_t = self.cols[("n", t)][:, j][:, None]
+                self.need([("n", int(r)) for r in returns])
+                unit_r = np.stack([self.cols[("n", int(r))][:, j] for r in returns], axis=1)
+            i = i_oc[:, None] - i_s * (unit_t - unit_r)
         else:
             g = self.g[:, k] if self.g.shape[0] > 1 else np.full(v.shape[0], self.g[0, k])
             c = self.c[:, k] if self.c.shape[0] > 1 else np.full(v.shape[0], self.c[0, k])
@@ -205,8 +306,10 @@ def prospective(net, s, points: list[tuple[int, np.ndarray, int | None]]):
     from ..analysis.mna import Factor
 
     bt = s.branches
-    involved = sorted({t for t, _r, _k in points} | {int(r) for _t, rr, _k in points for r in rr})
-    rows_full = None
+    seen = np.zeros(bt.n_nodes, dtype=bool)
+    for _t, rr, _k in points:
+        seen[rr] = True
+    returns_all = np.flatnonzero(seen)
     if not s.nonlinear:
         rows_full = s.rows
         row, N, vb = rows_full
@@ -217,15 +320,23 @@ def prospective(net, s, points: list[tuple[int, np.ndarray, int | None]]):
         drawn = (cf == 0) & (bt.c != 0) & ~bt.is_voltage
         c_s = np.where(drawn[None, :], 0.0, c_s)
         z = _rhs(bt, rows_full, c_s, np.atleast_2d(s.e), s.is_voltage, vb)
-        m = z.shape[1]
-        B = np.zeros((s.n, m, 1 + len(involved)))
-        B[:, :, 0] = z
-        for k, nd in enumerate(involved):
-            if row[nd] >= 0:
-                B[:, row[nd], 1 + k] = 1.0
-        X = s.solve_more(B)
-        resp = _Response(bt, rows_full, X, np.array(involved), s.g, c_s, s.is_voltage)
-        return [_evaluate(resp, t, rr, k) for t, rr, k in points], None
+        x_oc = s.solve_more(z[:, :, None])[:, :, 0]
+        resp = _Response(bt, rows_full, s.solve_more, x_oc, s.g, c_s, s.is_voltage, symmetric=_symmetric(s))
+        resp.diagonal(returns_all)
+        out = []
+        # points a block at a time: their columns solved together, then dropped
+        k0 = 0
+        while k0 < len(points):
+            keys, k1 = [], k0
+            while k1 < len(points) and (not keys or len(keys) < CHUNK):
+                t, _rr, k = points[k1]
+                keys += resp.keys_for(t, k)
+                k1 += 1
+            resp.need(keys)
+            out += [_evaluate(resp, t, rr, k) for t, rr, k in points[k0:k1]]
+            resp.forget()
+            k0 = k1
+        return out, None
     # nonlinear (one solve): iterate diode states per fault
     base = branch_table(net)
     diodes = base.groups["diode"][0] if "diode" in base.groups else np.zeros(0, dtype=np.int64)
@@ -233,6 +344,7 @@ def prospective(net, s, points: list[tuple[int, np.ndarray, int | None]]):
     for p in diodes:
         start[p] = s.state(base.names[int(p)]) == "conducting"
     cache: dict[bytes, _Response] = {}
+    diode_keys = [("n", int(x)) for p in diodes for x in (base.a[p], base.b[p])]
 
     def response(on: np.ndarray) -> _Response:
         key = on.tobytes()
@@ -244,13 +356,13 @@ def prospective(net, s, points: list[tuple[int, np.ndarray, int | None]]):
             system = pinned_system(model)
             factor = Factor(system)
             row, N, vb = system.row_of_node, system.n_node_rows, system.vbranch
-            B = np.zeros((system.size, 1 + len(involved)))
-            B[:, 0] = system.z
-            for k, nd in enumerate(involved):
-                if row[nd] >= 0:
-                    B[row[nd], 1 + k] = 1.0
-            X = np.asarray(factor.solve(B)).reshape(B.shape)[None]
-            r = _Response(model, (row, N, vb), X, np.array(involved), g, c, is_v)
+
+            def solve(B):
+                return np.asarray(factor.solve(B)).reshape(B.shape)[None]
+
+            x_oc = solve(system.z[:, None])[:, :, 0]
+            r = _Response(model, (row, N, vb), solve, x_oc, g, c, is_v, symmetric=_matrix_symmetric(system.A))
+            r.diagonal(returns_all)
             r.islands = system.islands
             cache[key] = r
         return cache[key]
@@ -266,11 +378,12 @@ def prospective(net, s, points: list[tuple[int, np.ndarray, int | None]]):
             nxt: dict[bytes, tuple[np.ndarray, list]] = {}
             for _key, (on, idx) in pending.items():
                 resp = response(on)
+                resp.need(resp.keys_for(t, k) + diode_keys)
                 ok_r = np.ones(len(idx), dtype=bool)
-                i_f, w, ti, ri = resp.pairs(t, rr[idx])
+                i_f, tt, ri = resp.pairs(t, rr[idx])
                 flips = np.zeros((len(diodes), len(idx)), dtype=bool)
                 for j, p in enumerate(diodes):
-                    v, i = resp.branch_during(int(p), i_f, w, ti, ri)
+                    v, i = resp.branch_during(int(p), i_f, tt, ri)
                     v, i = v[0], i[0]
                     cols = base.groups["diode"][1]
                     jj = int(np.searchsorted(base.groups["diode"][0], p))
@@ -282,7 +395,7 @@ def prospective(net, s, points: list[tuple[int, np.ndarray, int | None]]):
                     else:
                         flips[j] = v > drop + 1e-9 * max(1.0, abs(drop))
                 ok_r = ~flips.any(axis=0)
-                val = _watch(resp, k, i_f, w, ti, ri)[0]
+                val = _watch(resp, k, i_f, tt, ri)[0]
                 done_val[idx[ok_r]] = val[ok_r]
                 done_if[idx[ok_r]] = np.abs(i_f[0][ok_r])
                 for q in np.flatnonzero(~ok_r):
@@ -296,23 +409,43 @@ def prospective(net, s, points: list[tuple[int, np.ndarray, int | None]]):
             pending = {key: (on, np.array(ix)) for key, (on, ix) in nxt.items()}
             if not pending:
                 break
+        for resp in cache.values():
+            if len(resp.cols) > 4 * CHUNK:
+                resp.forget()
         worst = int(np.argmax(done_val)) if len(rr) else 0
         best = (np.array([done_val[worst]]), np.array([done_if[worst]]), np.array([worst]))
         results.append(best)
     return results, None
 
 
-def _watch(resp: _Response, k: int | None, i_f, w, ti, ri) -> np.ndarray:
+def _matrix_symmetric(A) -> bool:
+    """Is the matrix exactly symmetric (dense or sparse)?"""
+    if isinstance(A, np.ndarray):
+        return bool(np.array_equal(A, A.T))
+    d = (A - A.T).tocsc()
+    d.eliminate_zeros()
+    return d.nnz == 0
+
+
+def _symmetric(s) -> bool:
+    """The solve's matrix is symmetric (one solve: checked; a study's samples are assembled by the
+    same stamps, each a symmetric pair, and are taken as symmetric)."""
+    system = getattr(getattr(s, "solution", None), "system", None)
+    A = getattr(system, "A", None)
+    return True if A is None else _matrix_symmetric(A)
+
+
+def _watch(resp: _Response, k: int | None, i_f, t, returns) -> np.ndarray:
     """The figure a point is judged by: |current through element k| during each fault, or |fault current|."""
     if k is None:
         return np.abs(i_f)
-    _v, i = resp.branch_during(k, i_f, w, ti, ri)
+    _v, i = resp.branch_during(k, i_f, t, returns)
     return np.abs(i)
 
 
 def _evaluate(resp: _Response, t: int, rr: np.ndarray, k: int | None):
-    i_f, w, ti, ri = resp.pairs(t, rr)
-    val = _watch(resp, k, i_f, w, ti, ri)
+    i_f, tt, ri = resp.pairs(t, rr)
+    val = _watch(resp, k, i_f, tt, ri)
     worst = np.argmax(np.where(np.isnan(val), -np.inf, val), axis=1)
     S = val.shape[0]
     return val[np.arange(S), worst], np.abs(i_f[np.arange(S), worst]), worst
@@ -326,6 +459,7 @@ def rules(net, s) -> list[Series]:
     bt = s.branches
     labels = s.sections.labels
     idx = net.node_index
+    nodes = net.nodes
     points = []
     meta = []
     fuse_nodes = {idx[nd] for el in fuses for nd in el.nodes}
@@ -356,7 +490,7 @@ def rules(net, s) -> list[Series]:
         if kind == "fuse":
             prev = best.get(a.name)
             if prev is None:
-                best[a.name] = (a, val, i_f, np.array([b] * s.n, dtype=object), np.array([net.nodes[rr[j]] for j in worst], dtype=object))
+                best[a.name] = (a, val, i_f, np.array([b] * s.n, dtype=object), np.array([nodes[rr[j]] for j in worst], dtype=object))
             else:
                 take = val > prev[1]
                 best[a.name] = (
@@ -364,7 +498,7 @@ def rules(net, s) -> list[Series]:
                     np.where(take, val, prev[1]),
                     np.where(take, i_f, prev[2]),
                     np.where(take, b, prev[3]),
-                    np.where(take, np.array([net.nodes[rr[j]] for j in worst], dtype=object), prev[4]),
+                    np.where(take, np.array([nodes[rr[j]] for j in worst], dtype=object), prev[4]),
                 )
         else:
             detail = f"bolted fault from {b['pos']} to {b['neg']}" if s.single else ""

@@ -25,6 +25,8 @@ def options(args):
         max_include_depth=args.max_include_depth,
         max_expression_depth=args.max_expression_depth,
         max_block_depth=args.max_block_depth,
+        max_includes=args.max_includes,
+        max_total_bytes=args.max_total_bytes,
         allow_outside=args.allow_outside_includes,
     )
 
@@ -75,6 +77,22 @@ def add_fault_option(p: argparse.ArgumentParser) -> None:
     )
 
 
+DEFAULT_MAX_SAMPLES = 1_000_000
+
+
+def add_samples_limit(p: argparse.ArgumentParser) -> None:
+    """``--max-samples`` of the studies (sweep points, spread samples), judged before any work."""
+    p.add_argument("--max-samples", type=int, default=DEFAULT_MAX_SAMPLES, metavar="N", help=f"most points of a sweep or samples of a spread (default {DEFAULT_MAX_SAMPLES:,})")
+
+
+def check_samples(args, n: int, what: str) -> None:
+    """Refuse a study of more than ``--max-samples`` points before anything is drawn or solved."""
+    from ..errors import LimitError
+
+    if n > args.max_samples:
+        raise LimitError(f"{what} make {n:,}, above the limit of {args.max_samples:,}", hint="raise it with --max-samples if you mean it")
+
+
 def add_input_options(p: argparse.ArgumentParser) -> None:
     from ..language import Options
 
@@ -85,6 +103,8 @@ def add_input_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--max-include-depth", type=whole_number(0), default=d.max_include_depth, metavar="N", help=f"deepest nesting of includes (default {d.max_include_depth})")
     g.add_argument("--max-expression-depth", type=whole_number(1), default=d.max_expression_depth, metavar="N", help=f"deepest nesting of a value expression (default {d.max_expression_depth})")
     g.add_argument("--max-block-depth", type=whole_number(0), default=d.max_block_depth, metavar="N", help=f"deepest nesting of block instances (default {d.max_block_depth})")
+    g.add_argument("--max-includes", type=whole_number(0), default=d.max_includes, metavar="N", help=f"most includes followed for one circuit, each inclusion counted (default {d.max_includes:,})")
+    g.add_argument("--max-total-bytes", type=whole_number(1), default=d.max_total_bytes, metavar="N", help=f"most bytes read for one circuit, every file and inclusion counted (default {d.max_total_bytes:,})")
     g.add_argument("--allow-outside-includes", action="store_true", help="follow includes that leave the circuit file's folder")
 
 

@@ -21,6 +21,7 @@ def add_parser(sub) -> None:
     c = sub.add_parser("cycle", help="run the charge/discharge phases of a circuit file: energy ledger, states of charge")
     c.add_argument("file", metavar="FILE", help="circuit file (.dcn) with phase statements; - reads standard input")
     c.add_argument("--step", default="60s", metavar="TIME", help="longest time step, e.g. 1s, 30s, 5min (default 60s)")
+    c.add_argument("--max-steps", type=int, default=500_000, metavar="N", help="most time steps of the whole schedule, judged before the work from each phase's length over its step (default 500,000)")
     c.add_argument("--series", metavar="CSV", help="write the time series (states of charge, cell currents, node potentials) to this CSV file (never over an input)")
     c.add_argument("--plot", metavar="PNG", help="draw state of charge, string currents and bank voltage to this PNG file")
     c.add_argument("--format", choices=("table", "json"), default="table")
@@ -54,7 +55,7 @@ def run(args) -> int:
     check_outputs(args, [args.file])
     step = _seconds(args.step)
     net = parse(read_stdin(opts), "<stdin>", opts) if args.file == "-" else load(args.file, opts)
-    result = run_cycle(net, step=step, force_refactor=args.refactor, progress=True)
+    result = run_cycle(net, step=step, force_refactor=args.refactor, progress=True, max_steps=args.max_steps)
     inputs = net.files
     if args.series:
         write_file(args, args.series, series_csv(result), inputs)

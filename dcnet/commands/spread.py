@@ -42,6 +42,9 @@ def add_parser(sub) -> None:
     s.add_argument("--show", nargs="+", metavar="QUANTITY", default=[], help="quantities to describe, as in dcnet solve --show")
     s.add_argument("--percentiles", default="1,5,50,95,99", metavar="P,P,...", help="percentiles to report (default 1,5,50,95,99)")
     add_fault_option(s)
+    from .common import add_samples_limit
+
+    add_samples_limit(s)
     s.add_argument("--format", choices=("table", "csv", "json"), default="table", help="output format (default: table)")
     s.add_argument("--plot", metavar="PNG", help="also draw a histogram of each quantity (needs matplotlib)")
     s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input or a file an input includes)")
@@ -73,6 +76,9 @@ def run(args) -> int:
 
     if args.samples < 1 or args.samples > 100_000_000:
         raise InputError(f"--samples {args.samples}: give between 1 and 100,000,000 samples")
+    from .common import check_samples
+
+    check_samples(args, args.samples, "--samples")
     pct = _percentiles(args.percentiles)
     opts = options(args)
     check_outputs(args, [args.file])

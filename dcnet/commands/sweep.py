@@ -37,6 +37,9 @@ def add_parser(sub) -> None:
     )
     s.add_argument("--show", nargs="+", required=True, metavar="QUANTITY", help="as in dcnet solve --show: A1.current, bus+, a+,bus+, P1.drop_pct ...")
     add_fault_option(s)
+    from .common import add_samples_limit
+
+    add_samples_limit(s)
     s.add_argument("--format", choices=("table", "csv", "json"), default="table", help="output format (default: table)")
     s.add_argument("--plot", metavar="PNG", help="also draw the quantities against the first varied value (needs matplotlib)")
     s.add_argument("-o", "--output", metavar="OUT", help="write the output to this file (never over an input or a file an input includes)")
@@ -120,6 +123,11 @@ def run(args) -> int:
             raise InputError(f"--vary {text}: '{spec[0]}' is varied twice")
         names.append(spec[0])
         specs.append(spec)
+    from math import prod
+
+    from .common import check_samples
+
+    check_samples(args, prod(spec[3] for spec in specs), "the points of " + " x ".join(f"{spec[3]:,}" for spec in specs))
     study = Study(net, names, path=args.file, options=opts, quantities=args.show, fault=args.fault)
     axes = [(name, axis_values(start, stop, count, log)) for name, start, stop, count, log in specs]
     values = sweep_values(study, axes)

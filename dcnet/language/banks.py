@@ -36,7 +36,7 @@ from ..kinds.base import Kind, Prop, nonnegative, positive
 from ..netlist import Element
 from ..units import CURRENT, DIMENSIONLESS, RESISTANCE
 
-__all__ = ["expand_bank", "BANK"]
+__all__ = ["expand_bank", "element_count", "BANK"]
 
 
 def _count(name: str, x: float) -> None:
@@ -74,6 +74,21 @@ BANK = Kind(
 _TARGET = re.compile(r"^s([0-9]+)(?:\.c([0-9]+))?\.([A-Za-z_][A-Za-z0-9_]*)$")
 
 
+def element_count(S: int, P: int, present) -> int:
+    """How many elements a bank of S cells in series by P strings expands to (``present``: the
+    bank's properties given): counted before anything is expanded."""
+    n = S * P
+    if "strap" in present:
+        n += (S - 1) * P
+    if "fuse" in present:
+        n += P
+    if "lead" in present:
+        n += 2 * P
+    if "bus" in present and P > 1:
+        n += 2 * (P - 1)
+    return n
+
+
 def expand_bank(st, s, file: str) -> None:
     """Elaborate one ``bank`` statement into elements (called by the elaborator)."""
     from .elaborate import _check_new_name, _resolve_prop, _src, add_element, element_values
@@ -102,10 +117,18 @@ def expand_bank(st, s, file: str) -> None:
             if spec.default is not None:
                 values[spec.name] = spec.default
     S, P = int(values["series"]), int(values["parallel"])
-    if S * P > st.options.max_elements:
+    count = element_count(S, P, values)
+    have = len(st.net.elements)
+    if have + count > st.options.max_elements:
         from ..errors import LimitError
 
-        raise LimitError(f"bank {name} has {S * P:,} cells, above the limit of {st.options.max_elements:,} elements", span=name_span)
+        raise LimitError(
+            f"bank {name} ({S:,} in series x {P:,} in parallel) expands to {count:,} elements"
+            + (f", with the {have:,} before it {have + count:,}" if have else "")
+            + f", above the limit of {st.options.max_elements:,} elements",
+            span=name_span,
+            hint="raise the limit with --max-elements if the file is trusted",
+        )
     part_name = values["cell"]
     part = st.parts.get(part_name)
     if part is None or part[0] != "cell":

@@ -11,12 +11,12 @@ from __future__ import annotations
 import gc
 import os
 import re
+import stat
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from ..display import source_lines
 from ..errors import (
     DcnetError,
     DimensionError,
@@ -57,6 +57,10 @@ class Options:
     max_include_depth: int = 16
     max_expression_depth: int = 256
     max_block_depth: int = 16  # nesting of block instances (a block that uses a block ...)
+    #: include statements followed for one circuit, every inclusion counted (the same file twice counts twice)
+    max_includes: int = 1_000
+    #: bytes read for one circuit: every file, every inclusion counted
+    max_total_bytes: int = 100_000_000
     allow_outside: bool = False  # includes outside the top file's folder tree
     #: solve every bank with its main leads at this tap position (same, opposite, centre), whatever the file says
     tap_override: str | None = None
@@ -111,6 +115,10 @@ class _State:
     ground_span: Span | None = None
     const_cache: dict[str, Quantity] = field(default_factory=dict)
     include_stack: list[Path] = field(default_factory=list)
+    includes: int = 0  # include statements counted so far (before any is followed)
+    instances: int = 0  # block instances expanded so far
+    block_sizes: dict[str, tuple[int, int]] = field(default_factory=dict)  # block -> (elements at least, instances)
+    bytes_read: int = 0  # bytes of every file read so far, every inclusion counted
     blocks: dict[str, _Block] = field(default_factory=dict)
     scope: _Scope = field(default_factory=_Scope)
     #: expression trees of the properties just resolved that use let values (key -> tree)
@@ -142,6 +150,7 @@ def parse(text: str, file: str = "<text>", options: Options | None = None, *, ba
     options = options or Options()
     root = Path(base_dir).resolve() if base_dir is not None else Path.cwd().resolve()
     st = _State(Netlist(), options, root)
+    st.bytes_read = len(text)
     st.net.files.append(file)
     with _read_files_on_error(st):
         with _gc_paused():
@@ -162,6 +171,7 @@ def load(path: str | os.PathLike, options: Options | None = None, *, text: str |
         text = _read(p, options, None)
     root = p.resolve().parent
     st = _State(Netlist(), options, root)
+    st.bytes_read = len(text)
     st.net.files.append(str(path))
     st.include_stack.append(p.resolve())
     with _read_files_on_error(st):
@@ -265,6 +275,49 @@ def _read(p: Path, options: Options, span: Span | None) -> str:
     return _decode(data, str(p))
 
 
+_NOT_REGULAR = {stat.S_IFIFO: "a named pipe", stat.S_IFCHR: "a character device", stat.S_IFBLK: "a block device", stat.S_IFSOCK: "a socket", stat.S_IFDIR: "a folder"}
+
+
+def _read_include(st: _State, p: Path, rel: str, span: Span) -> str:
+    """An included file's text: a regular file only (a named pipe or a device could block or never
+    end), judged on the opened file itself (opened without waiting for a writer), within the
+    size limit of one file and the budget of everything read for the circuit."""
+    options = st.options
+    try:
+        fd = os.open(p, os.O_RDONLY | os.O_NONBLOCK | getattr(os, "O_CLOEXEC", 0))
+    except FileNotFoundError:
+        raise IncludeError(f"file not found: {p}", span=span) from None
+    except PermissionError:
+        raise InputError(f"cannot read {p}: permission denied", span=span) from None
+    except OSError as exc:
+        raise InputError(f"cannot read {p}: {exc.strerror or exc}", span=span) from None
+    except ValueError as exc:  # a NUL byte in the name
+        raise InputError(f"cannot read {str(p)!r}: {exc}", span=span, hint="a file name cannot hold a NUL character") from None
+    with os.fdopen(fd, "rb") as fh:
+        info = os.fstat(fh.fileno())
+        if not stat.S_ISREG(info.st_mode):
+            what = _NOT_REGULAR.get(stat.S_IFMT(info.st_mode), "not a regular file")
+            raise IncludeError(f"include '{rel}' is {what}, not a circuit file", span=span, hint="an include names a regular file (.dcn)")
+        size = info.st_size
+        if size > options.max_file_bytes:
+            raise LimitError(f"{p} is {size:,} bytes, above the limit of {options.max_file_bytes:,}", span=span, hint="raise it with --max-file-bytes if the file is trusted")
+        if st.bytes_read + size > options.max_total_bytes:
+            raise LimitError(
+                f"reading {p} ({size:,} bytes) would bring what this circuit reads to {st.bytes_read + size:,} bytes "
+                f"(every file and every inclusion counted), above the limit of {options.max_total_bytes:,}",
+                span=span,
+                hint="raise it with --max-total-bytes if the files are trusted",
+            )
+        try:
+            data = fh.read(options.max_file_bytes + 1)
+        except OSError as exc:
+            raise InputError(f"cannot read {p}: {exc.strerror}", span=span) from None
+    if len(data) > options.max_file_bytes:
+        raise LimitError(f"{p} is more than {options.max_file_bytes:,} bytes", span=span, hint="raise it with --max-file-bytes if the file is trusted")
+    st.bytes_read += len(data)
+    return _decode(data, str(p))
+
+
 # -------------------------------------------------------------- statements
 def _run(st: _State, text: str, file: str, folder: Path, echo: bool = True) -> None:
     """Elaborate one file's statements. ``echo=False`` (a file outside the circuit's folder,
@@ -283,8 +336,9 @@ _HANDLERS: dict[str, Any] = {}
 
 
 def _run_statements(st: _State, text: str, file: str, folder: Path) -> None:
-    st.lines[file] = source_lines(text)  # numbered as the grammar counts lines
+    st.lines[file] = _Lines(text)  # numbered as the grammar counts lines, found when an error needs one
     statements = parse_statements(text, file)
+    _count_includes(st, statements, file)
     collecting: _Block | None = None
     depth = 0
     for s in statements:
@@ -321,6 +375,51 @@ def _run_statements(st: _State, text: str, file: str, folder: Path) -> None:
         )
 
 
+def _count_includes(st: _State, statements: list[Statement], file: str) -> None:
+    """Count a file's include statements before following any: a fan-out of includes (each file
+    including several others, level after level) is refused after reading a bounded number of
+    files, not after following every inclusion."""
+    inc = [s for s in statements if s.what == "include"]
+    limit = st.options.max_includes
+    if st.includes + len(inc) > limit:
+        s = inc[max(limit - st.includes, 0)]
+        raise LimitError(
+            f"this include would be number {limit + 1:,} for the circuit ({st.includes:,} counted before this file, "
+            f"{len(inc):,} in it; the same file included twice counts twice), above the limit of {limit:,}",
+            span=Span(file, s.line, s.arg_pos[0][1], len(s.args[0]) + 2),
+            hint="raise it with --max-includes if the files are trusted",
+        )
+    st.includes += len(inc)
+
+
+class _Lines:
+    """A file's lines as the grammar counts them (:func:`dcnet.display.source_lines`), found on
+    demand: the text is kept as it is, and the line starts are indexed at the first lookup (an
+    error), never for a file that has none: a file of millions of blank lines costs no list."""
+
+    __slots__ = ("text", "_data", "_ends")
+
+    def __init__(self, text: str):
+        self.text = text
+        self._data = None
+        self._ends = None
+
+    def get(self, line: int) -> str | None:
+        if self._ends is None:
+            import numpy as np
+
+            self._data = self.text.encode("utf-8", "surrogatepass")
+            ends = np.flatnonzero(np.frombuffer(self._data, dtype=np.uint8) == 10)
+            if not self._data.endswith(b"\n") and self._data:
+                ends = np.append(ends, len(self._data))
+            self._ends = ends.astype(np.uint32 if len(self._data) < 2**32 else np.int64)
+        if not 0 < line <= len(self._ends):
+            return None
+        start = 0 if line == 1 else int(self._ends[line - 2]) + 1
+        text = self._data[start : int(self._ends[line - 1])].decode("utf-8", "surrogatepass")
+        return text[:-1] if text.endswith("\r") else text
+
+
 def _dispatch(st: _State, s: Statement, file: str) -> None:
     _HANDLERS[s.what](st, s, file)
 
@@ -336,9 +435,7 @@ def _src(st: _State, file: str, line: int) -> str | None:
     if file in st.quiet:
         return None
     lines = st.lines.get(file)
-    if lines and 0 < line <= len(lines):
-        return lines[line - 1]
-    return None
+    return lines.get(line) if lines is not None else None
 
 
 def _title(st, s, file):
@@ -388,6 +485,8 @@ def _use(st: _State, s: Statement, file: str) -> None:
             span=span,
             hint="raise the limit with --max-block-depth if the file is trusted",
         )
+    _check_block_size(st, inst, block, span)
+    st.instances += 1
     # parameters: the block's own let names, overridden by key=value on the use line
     params = {b.args[0]: b for b in block.body if b.what == "let"}
     overrides: dict[str, Quantity] = {}
@@ -430,6 +529,77 @@ def _use(st: _State, s: Statement, file: str) -> None:
         st.scope = scope
 
 
+def _check_block_size(st: _State, inst: str, block: _Block, span: Span) -> None:
+    """Refuse an instance before expanding it when the elements it adds at least (or the block
+    instances it makes) would pass the element limit: a fan-out of blocks (A uses ten B, B ten
+    C ...) is refused at its first use line, not after expanding millions of elements."""
+    elements, instances = _block_size(st, block.name, ())
+    limit = st.options.max_elements
+    have = len(st.net.elements)
+    where = f"use {inst} of block {block.name}"
+    if have + elements > limit:
+        raise LimitError(
+            f"{where} expands to at least {elements:,} elements" + (f", with the {have:,} before it {have + elements:,}" if have else "")
+            + f", above the limit of {limit:,} elements",
+            span=span,
+            hint="raise the limit with --max-elements if the file is trusted",
+        )
+    if st.instances + instances > limit:
+        raise LimitError(
+            f"{where} makes {instances:,} block instances" + (f", with the {st.instances:,} before it {st.instances + instances:,}" if st.instances else "")
+            + f", above the limit of {limit:,} (block instances count against the element limit)",
+            span=span,
+            hint="raise the limit with --max-elements if the file is trusted",
+        )
+
+
+def _block_size(st: _State, name: str, chain: tuple[str, ...]) -> tuple[int, int]:
+    """(elements at least, block instances) of one instance of block ``name``, counted from its
+    body without expanding it, once per block. A bank whose counts are plain numbers counts
+    exactly; one whose counts use let values counts as one element (at least)."""
+    memo = st.block_sizes.get(name)
+    if memo is not None:
+        return memo
+    block = st.blocks.get(name)
+    if block is None or name in chain:
+        return 0, 0  # an unknown block or a block that uses itself: its use line says so
+    elements, instances, exact = 0, 1, True
+    for b in block.body:
+        if b.what == "element":
+            elements += _bank_size(st, b) if b.args and b.args[0] == "bank" else 1
+        elif b.what == "use" and len(b.args) > 1:
+            if b.args[1] not in st.blocks or b.args[1] in chain + (name,):
+                exact = False
+            e, n = _block_size(st, b.args[1], chain + (name,))
+            elements += e
+            instances += n
+    if exact:
+        st.block_sizes[name] = (elements, instances)
+    return elements, instances
+
+
+def _bank_size(st: _State, s: Statement) -> int:
+    """The elements a bank statement expands to, when its counts are plain numbers; else 1."""
+    from .banks import element_count
+
+    counts = {}
+    for p in s.props:
+        if p.key in ("series", "parallel"):
+            try:
+                tree = parse_value(p.raw, _value_span("", p))
+                if names_in(tree[1]) - _unit_names(tree[1]) or tree[2] is not None:
+                    return 1
+                x = evaluate(tree[1], {}).value
+            except (DcnetError, ExpressionProblem):
+                return 1
+            if not (x >= 1 and x == int(x) and x <= 100_000):
+                return 1
+            counts[p.key] = int(x)
+    if len(counts) != 2:
+        return 1
+    return element_count(counts["series"], counts["parallel"], {p.key for p in s.props})
+
+
 def _let(st: _State, s: Statement, file: str) -> None:
     name, raw = s.args
     (nl, nc), (vl, vc) = s.arg_pos
@@ -448,7 +618,7 @@ def _let(st: _State, s: Statement, file: str) -> None:
     if name in target:
         raise InputError(f"value '{name}' is already defined", span=Span(file, nl, nc, len(name)), hint="each let name is defined once")
     span = Span(file, vl, vc, len(raw))
-    tree = parse_value(raw, span, _src(st, file, vl))
+    tree = _parse_value(st, raw, span, file)
     if scope.depth and name in scope.overrides:  # type: ignore[attr-defined]
         q = scope.overrides[name]  # type: ignore[attr-defined]
         if q.dim != _eval(st, tree[1], span).dim:
@@ -585,7 +755,7 @@ def _quantity(st: _State, raw: str, span: Span, file: str) -> Quantity:
     q = st.const_cache.get(raw)
     if q is not None:
         return q
-    tree = parse_value(raw, span, _src(st, file, span.line))
+    tree = _parse_value(st, raw, span, file)
     if tree[2] is not None:
         raise InputError(
             "a tolerance (±) belongs on a let value",
@@ -598,6 +768,16 @@ def _quantity(st: _State, raw: str, span: Span, file: str) -> Quantity:
     elif st.scope.depth == 0:
         st.last_tree = tree[1]  # depends on let values: studies re-evaluate it
     return q
+
+
+def _parse_value(st: _State, raw: str, span: Span, file: str):
+    """parse_value, with the source line looked up only when there is an error to show it in."""
+    try:
+        return parse_value(raw, span, None)
+    except DcnetError as err:
+        if err.source_line is None:
+            err.source_line = _src(st, file, span.line)
+        raise
 
 
 def _unit_names(tree) -> set[str]:
@@ -797,7 +977,7 @@ def _include(st: _State, s: Statement, file: str, folder: Path) -> None:
         chain = " -> ".join(p.name for p in st.include_stack[st.include_stack.index(target):] + [target])
         raise IncludeError(f"include cycle: {chain}", span=span, hint="remove one of the includes")
     st.net.files.append(str(target))  # before reading: an output never overwrites it, even if it is refused
-    text = _read(target, st.options, span)
+    text = _read_include(st, target, rel, span)
     st.include_stack.append(target)
     try:
         _run(st, text, str(target), target.parent, echo=inside)

@@ -572,12 +572,23 @@ def scan_lookalikes(raw: str, span: Span, source_line: str | None) -> None:
 
 
 # ------------------------------------------------------------------ entry
+#: runs of lines holding only blanks and/or a comment: emptied before lexing, so that such lines
+#: cost one character of a newline run each (their line numbers stay; the grammar's newline run
+#: is possessive, so matching it takes no memory per line)
+_EMPTY_LINES = re.compile(r"^(?:[ \t]*(?:#[^\n]*)?\r?\n)++", re.M)
+
+
+def _emptied(text: str) -> str:
+    """The text with every run of blank and comment-only lines replaced by its newlines alone."""
+    return _EMPTY_LINES.sub(lambda m: "\n" * m.group().count("\n"), text)
+
+
 def parse_statements(text: str, file: str = "<text>") -> list[Statement]:
     """Parse a whole circuit text into statements (values kept raw)."""
     if not text.endswith("\n"):
         text += "\n"
     try:
-        return _parser().parse(text, start="file")
+        return _parser().parse(_emptied(text), start="file")
     except UnexpectedInput as exc:
         err = _syntax_error(exc, text, file)
     except VisitError as exc:  # pragma: no cover - transformer bugs surface as ours
