@@ -7,37 +7,63 @@ The example budget is small in CI; ``DCNET_FUZZ_EXAMPLES`` raises it for long ru
 
 import os
 import pickle
+import warnings
 
 from hypothesis import HealthCheck, given, settings
 
 import dcnet
 from dcnet.errors import DcnetError, InputError, TopologyError
 
-from .strategies import any_input, mutated_file, token_soup, valid_netlist
+from .oracle import bound_violations, kcl_violations, passivity_violations
+from .strategies import any_input, extreme_netlist, hostile_demo, hostile_seed, mutated_file, token_soup, valid_netlist
 
 BUDGET = int(os.environ.get("DCNET_FUZZ_EXAMPLES", "200"))
 SETTINGS = settings(max_examples=BUDGET, deadline=None, suppress_health_check=list(HealthCheck))
 
 
 def check_one(text: str) -> str:
-    """Solve or refuse properly; returns the outcome class for statistics."""
+    """Solve or refuse properly; returns the outcome class for statistics.
+
+    A refusal must be one of dcnet's own errors (with a location or culprits, pickling
+    cleanly). A solved answer must verify, obey Kirchhoff's current law at every node judged
+    against the currents meeting there, and keep every potential within the physical bound
+    written in the test (tests/fuzz/oracle.py). No numpy RuntimeWarning (overflow, invalid
+    value, division by zero) may escape on the way, refused or solved."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        outcome, sol = _solve(text)
+    numpy_warnings = [w for w in caught if issubclass(w.category, RuntimeWarning)]
+    assert not numpy_warnings, f"RuntimeWarning: {numpy_warnings[0].message} ({numpy_warnings[0].filename}:{numpy_warnings[0].lineno})"
+    if sol is not None:
+        net = sol.netlist
+        kcl = kcl_violations(net, sol.potentials, sol.i)
+        assert not kcl, "Kirchhoff: " + "; ".join(kcl[:3])
+        active = passivity_violations(net, sol.v, sol.i)
+        assert not active, "passivity: " + "; ".join(active[:3])
+        far = bound_violations(net, sol.potentials)
+        assert not far, "bound: " + "; ".join(far[:3])
+    return outcome
+
+
+def _solve(text: str):
     try:
         sol = dcnet.parse(text, "fuzz.dcn").solve()
     except InputError as err:
         assert err.span is not None and err.span.file == "fuzz.dcn", err.render()
         assert "Traceback" not in err.render()
         pickle.loads(pickle.dumps(err))
-        return type(err).__name__
+        return type(err).__name__, None
     except TopologyError as err:
         assert err.culprits or err.node, err.render()
-        return "TopologyError"
+        return "TopologyError", None
     except DcnetError as err:
         err.render()
-        return type(err).__name__
+        pickle.loads(pickle.dumps(err))
+        return type(err).__name__, None
     bal = sol.balance
     assert bal["kcl_relative"] <= 1e-6 and bal["power_relative"] <= 1e-6
     sol.to_dict()
-    return "solved"
+    return "solved", sol
 
 
 @SETTINGS
