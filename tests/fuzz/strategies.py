@@ -109,8 +109,13 @@ any_input = st.one_of(token_soup, mutated_file(), valid_netlist())
 # its structure and gets past the parser to the solver, where the silent wrong answers were.
 
 FAULT_SEED_DIR = ROOT / "bench" / "fuzz_seeds" / "faults"
-#: the fault seeds small enough for the in-process loop (the many-* ones are thousands of lines)
-FAULT_SEEDS = [p.read_text(encoding="utf-8", errors="surrogateescape") for p in sorted(FAULT_SEED_DIR.glob("*.dcn")) if p.stat().st_size < 4000]
+#: seeds of this size or more (thousands of lines, seconds per solve) stay out of the test suite
+BIG_SEED = 4000
+_SEED_PATHS = sorted(FAULT_SEED_DIR.glob("*.dcn"))
+#: the fault seeds small enough for the in-process loop
+FAULT_SEEDS = [p.read_text(encoding="utf-8", errors="surrogateescape") for p in _SEED_PATHS if p.stat().st_size < BIG_SEED]
+#: the big ones (many diode branches, many constant-power loads), for bench/fuzz_run.py only
+BIG_SEEDS = [p.read_text(encoding="utf-8", errors="surrogateescape") for p in _SEED_PATHS if p.stat().st_size >= BIG_SEED]
 
 #: numbers at the edges of the double range and of the physically sensible one
 EXTREME_NUMBERS = [
@@ -351,3 +356,54 @@ def extreme_netlist(draw):
 
 hostile_demo = hostile_file(SEEDS)
 hostile_seed = hostile_file(FAULT_SEEDS)
+hostile_big_seed = hostile_file(BIG_SEEDS)
+
+
+# --------------------------------------------------------------------------------------------
+# Resource limits: inputs that must be refused up front (issue 13, point 9). These are slow or
+# huge on code without the limits, so they never run in the in-process loop: bench/fuzz_run.py
+# runs each in a fresh command-line process with a time limit and an address-space limit.
+
+_CELL = "cell BAT b+ gnd emf=12.6V r=10mOhm\nload LMP b+ gnd r=2Ohm\nground gnd\n"
+
+
+@st.composite
+def limits_case(draw):
+    """{"files": {name: text, or None for a named pipe}, "main": name, "args": [command, options]}."""
+    what = draw(st.sampled_from(["include-fanout", "bank", "block-fanout", "blank-lines", "long-line", "nesting", "include-pipe"]))
+    files: dict = {}
+    if what == "include-fanout":
+        width, depth = draw(st.integers(2, 12)), draw(st.integers(2, 9))
+        for k in range(depth):
+            files[f"l{k}.dcn"] = "".join(f'include "l{k + 1}.dcn"\n' for _ in range(width))
+        files[f"l{depth}.dcn"] = "# leaf\n"
+        files["main.dcn"] = 'include "l0.dcn"\n' + _CELL
+    elif what == "bank":
+        s, p = draw(st.sampled_from([1, 10, 100, 1000, 3000])), draw(st.sampled_from([1, 10, 100, 1000, 3000]))
+        extra = draw(st.sampled_from(["", " strap=0.1mOhm bus=0.2mOhm", " fuse=80A fuse_r=0.4mOhm", " spread=5% seed=7"]))
+        files["main.dcn"] = (
+            "part c cell emf=2.1V r=1mOhm capacity=100Ah chemistry=lead-acid\n"
+            f"bank B b+ gnd series={s} parallel={p} cell=c{extra}\nload R b+ gnd r=1Ohm\nground gnd\n"
+        )
+    elif what == "block-fanout":
+        width, depth = draw(st.integers(2, 12)), draw(st.integers(2, 9))
+        text = "block b%d (p, n)\n  resistor R p n r=1Ohm\nend\n" % depth
+        for k in range(depth - 1, -1, -1):
+            text += f"block b{k} (p, n)\n" + "".join(f"  use u{j} b{k + 1} (p, n)\n" for j in range(width)) + "end\n"
+        files["main.dcn"] = text + "use top b0 (b+, gnd)\n" + _CELL
+    elif what == "blank-lines":
+        mb = draw(st.sampled_from([1, 5, 20]))
+        files["main.dcn"] = draw(st.sampled_from(["\n", "\r\n", " \n", "#\n", "\\\n"])) * (mb * 1024 * 1024 // 2) + _CELL
+    elif what == "long-line":
+        mb = draw(st.sampled_from([1, 5, 20]))
+        files["main.dcn"] = "title \"" + "x" * (mb * 1024 * 1024) + "\"\n" + _CELL
+    elif what == "nesting":
+        depth = draw(st.sampled_from([100, 1000, 10000, 100000]))
+        op = draw(st.sampled_from(["(", "-", "sqrt(", "+"]))
+        close = ")" if op.endswith("(") else ""
+        files["main.dcn"] = f"let x = {op * depth}1{close * depth}\n" + _CELL
+    else:
+        files["main.dcn"] = 'include "pipe.dcn"\n' + _CELL
+        files["pipe.dcn"] = None
+    args = draw(st.sampled_from([["check"], ["solve"], ["solve", "--format", "json"]]))
+    return {"files": files, "main": "main.dcn", "args": args, "what": what}
