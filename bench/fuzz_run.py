@@ -59,6 +59,20 @@ def strategy(name: str):
     }[name]
 
 
+def limit_seeds() -> list[dict]:
+    """The fixed cases of bench/fuzz_seeds/limits/: each .dcn file, and each folder (main.dcn with
+    the files it includes), run before the generated ones."""
+    out = []
+    base = ROOT / "bench" / "fuzz_seeds" / "limits"
+    for p in sorted(base.iterdir()) if base.is_dir() else []:
+        if p.suffix == ".dcn":
+            out.append({"files": {"main.dcn": p.read_text(encoding="utf-8")}, "main": "main.dcn", "args": ["check"], "what": "seed " + p.name})
+        elif p.is_dir() and (p / "main.dcn").exists():
+            files = {f.name: f.read_text(encoding="utf-8") for f in sorted(p.glob("*.dcn"))}
+            out.append({"files": files, "main": "main.dcn", "args": ["check"], "what": "seed " + p.name})
+    return out
+
+
 def draw(name: str, n: int, seed: int | None) -> list:
     from hypothesis import HealthCheck, Phase, given, settings
     from hypothesis import seed as hseed
@@ -271,7 +285,7 @@ def main() -> int:
     t0 = time.perf_counter()
     for family in families:
         t = time.perf_counter()
-        inputs = draw(family, args.examples, args.seed)
+        inputs = (limit_seeds() if family == "limits" else []) + draw(family, args.examples, args.seed)
         t_draw = time.perf_counter() - t
         counts: collections.Counter = collections.Counter()
 
