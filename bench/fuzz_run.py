@@ -127,7 +127,10 @@ def worker(conn, memory_mb: int) -> None:
     from tests.fuzz.test_fuzz import check_one
 
     while True:
-        text = conn.recv()
+        try:
+            text = conn.recv()
+        except (EOFError, OSError):
+            return  # the campaign has ended
         if text is None:
             return
         t = time.perf_counter()
@@ -216,7 +219,7 @@ def run_limits_case(case: dict, timeout: float, memory_mb: int):
             if text is None:
                 os.mkfifo(p)
             else:
-                p.write_text(text, encoding="utf-8", errors="surrogateescape")
+                p.write_text(text, encoding="utf-8", errors="surrogatepass")
 
         def limit():
             if memory_mb:
@@ -277,6 +280,8 @@ def main() -> int:
     if bad:
         ap.error(f"unknown family {bad[0]!r}; choose from {', '.join(FAMILIES)}")
     args.out.mkdir(parents=True, exist_ok=True)
+    # the workers are forked: import the oracle here so they share this very version of it
+    from tests.fuzz.test_fuzz import check_one  # noqa: F401
 
     total: collections.Counter = collections.Counter()
     faults: dict[str, dict] = {}
@@ -359,10 +364,10 @@ def _write_case(stem: Path, item) -> None:
             if text is None:
                 p.with_name(p.name + ".FIFO").write_text("make this file a named pipe: mkfifo " + name + "\n", encoding="utf-8")
             else:
-                p.write_text(text, encoding="utf-8", errors="surrogateescape")
+                p.write_text(text, encoding="utf-8", errors="surrogatepass")
         (folder / "ARGS").write_text(" ".join(item["args"]) + " " + item["main"] + "\n", encoding="utf-8")
     else:
-        stem.with_suffix(".dcn").write_text(item, encoding="utf-8", errors="surrogateescape")
+        stem.with_suffix(".dcn").write_text(item, encoding="utf-8", errors="surrogatepass")
 
 
 if __name__ == "__main__":
