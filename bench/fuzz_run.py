@@ -100,7 +100,9 @@ def fault_class(err: BaseException) -> str:
             what = msg.split(":", 1)[1].split("(")[0].strip()
             return f"RuntimeWarning {what} at {_short(where.group(1))}:{where.group(2)}" if where else msg[:80]
         head = msg.split(":", 1)[0]
-        if head in ("Kirchhoff", "bound", "passivity"):
+        if head == "Kirchhoff":
+            return "Kirchhoff, a current reported at 0 A" if "exactly 0 A" in msg else "Kirchhoff"
+        if head in ("bound", "passivity"):
             return head
         return "assertion in check_one: " + msg[:60]
     frames = traceback.extract_tb(err.__traceback__)

@@ -63,10 +63,14 @@ def kcl_violations(net, potentials, currents) -> list[str]:
         meet[b] += abs(i[k])
     floor = ROUND_OFF * (np.abs(i).max() if len(i) else 0.0)
     names = list(net.node_index)
-    return [
-        f"node {names[n]}: currents sum to {balance[n]:.6g} A, {meet[n]:.6g} A meet there"
-        for n in np.flatnonzero(np.abs(balance) > KCL_RELATIVE * meet + floor)
-    ]
+    out = []
+    for n in np.flatnonzero(np.abs(balance) > KCL_RELATIVE * meet + floor):
+        zero = [e.name for k, e in enumerate(net.elements) if i[k] == 0.0 and n in (net.node_index[e.nodes[0]], net.node_index[e.nodes[1]])]
+        out.append(
+            f"node {names[n]}: currents sum to {balance[n]:.6g} A, {meet[n]:.6g} A meet there"
+            + (f" (reported at exactly 0 A: {', '.join(zero[:4])})" if zero else "")
+        )
+    return out
 
 
 #: kinds whose law never delivers power (a resistance, a diode, a constant-power load)
