@@ -22,8 +22,9 @@ import numpy as np
 #: relative tolerance of the node balance against the currents meeting at the node (the
 #: solves are in double precision; a true answer is within ~1e-12 of this)
 KCL_RELATIVE = 1e-6
-#: relative slack of the potential bound (round-off of the potentials themselves)
-BOUND_RELATIVE = 1e-6
+#: relative slack of the potential bound: round-off of an ill-conditioned solve (a dangling node
+#: 3e-6 above a 649 kV cell behind 516 kOhm was seen) is not what the bound is for
+BOUND_RELATIVE = 1e-4
 #: currents and voltages below this fraction of the network's largest are round-off
 ROUND_OFF = 1e-9
 
