@@ -306,7 +306,7 @@ def main() -> int:
             if peak > worst_mem[0]:
                 worst_mem = (peak, family, index)
             if fault is None:
-                counts[outcome] += 1
+                counts[outcome + (f" [{item['what']}]" if isinstance(item, dict) else "")] += 1
                 return
             counts["FAULT: " + fault] += 1
             entry = faults.setdefault(fault, {"count": 0, "families": collections.Counter(), "smallest": None})
