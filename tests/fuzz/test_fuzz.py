@@ -137,14 +137,13 @@ def test_cli_never_shows_a_traceback_on_hostile_input(text):
 
 
 def _cli_without_traceback(text):
-    import contextlib
     import io
     import sys
 
     from dcnet.cli import main
 
     err = io.StringIO()
-    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(err):
+    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(err), _memory_cap():
         old = sys.stdin
         sys.stdin = io.StringIO(text)
         try:
