@@ -143,7 +143,8 @@ def _cli_without_traceback(text):
     from dcnet.cli import main
 
     err = io.StringIO()
-    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(err), _memory_cap():
+    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(err), _memory_cap(), warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
         old = sys.stdin
         sys.stdin = io.StringIO(text)
         try:
@@ -152,6 +153,8 @@ def _cli_without_traceback(text):
             sys.stdin = old
     assert code in (0, 1, 2)
     assert "Traceback" not in err.getvalue()
+    numpy_warnings = [w for w in caught if issubclass(w.category, RuntimeWarning)]
+    assert not numpy_warnings, f"RuntimeWarning: {numpy_warnings[0].message} ({numpy_warnings[0].filename}:{numpy_warnings[0].lineno})"
     if code == 2:
         assert "<stdin>" in err.getvalue()
 
