@@ -173,6 +173,8 @@ SEED_EXPECTATIONS = {
     "negative-load-current.dcn": ("refused", XFAIL),
     "subnormal-ohm.dcn": ("refused", XFAIL),
     "limit-among-nothing.dcn": ("refused", None),
+    "limit-among-unknown.dcn": ("refused", XFAIL),
+    "limit-among-duplicate.dcn": ("refused", XFAIL),
     "nul-include.dcn": ("refused", XFAIL),
     "limit-unknown-element.dcn": ("refused", XFAIL),
     "load-at-power-limit.dcn": ("refused with the power-limit message", XFAIL),
