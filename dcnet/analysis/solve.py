@@ -302,6 +302,23 @@ BOUND_EPS = 16 * float(np.finfo(float).eps)
 
 
 def solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool = False) -> Solution:
+    """Solve a netlist and verify the result (see :func:`_solve`).
+
+    numpy's floating-point warnings (an overflow, a division by zero, an invalid value) inside
+    the solve are dcnet's NumericalError, from the Python API as from the command line
+    (dcnet/floating.py): an infinity that entered unguarded arithmetic is never an answer."""
+    from ..floating import as_error, is_floating_point_warning, refused
+
+    try:
+        with refused():
+            return _solve(net, check_topology=check_topology, estimate_condition=estimate_condition)
+    except RuntimeWarning as exc:
+        if not is_floating_point_warning(exc):
+            raise
+        raise as_error(exc, net.files[0] if net.files else None) from None
+
+
+def _solve(net: Netlist, *, check_topology: bool = True, estimate_condition: bool = False) -> Solution:
     """Solve a netlist and verify the result.
 
     The condition number is computed for small (dense) systems always, and for
@@ -451,7 +468,9 @@ def _finish(
     end = np.abs(_leaving(bt.a, bt.b, bt.n_nodes, i))
     meet = BOUND_EPS * _incident(bt.a, bt.b, bt.n_nodes, np.abs(i))
     bounds = bounds + np.minimum(end[bt.a], end[bt.b]) + np.maximum(meet[bt.a], meet[bt.b])
-    i = np.where(np.abs(i) <= bounds, 0.0, i)
+    i = zero_within_bounds(bt, i, bounds)
+    _check_reported_balance(bt, i)
+    _check_source_limits(bt, i)
     del nodes
     if system.islands:
         warnings.append(_island_note(net, bt, system.islands, pot))
@@ -516,6 +535,95 @@ def _check_refinement(bt, system, factor, x, pot, i, g, c, balance, bounds) -> N
             element=bt.names[k] if bad.any() else None,
             hint="element values may span too many decades; check for extreme resistances",
         )
+
+
+#: the currents shown must balance at every node to this share of the currents meeting there
+#: (plus this share of the largest current, and a far smaller share of the largest source term
+#: (a cell's short-circuit current, a supply's current), for nodes where only round-off meets)
+SHOWN_REL = 1e-6
+SHOWN_FLOOR = 1e-9
+SHOWN_SOURCE_FLOOR = 1e-12
+
+
+def _check_reported_balance(bt: BranchTable, i: np.ndarray) -> None:
+    """The currents as they will be shown must obey Kirchhoff's current law at every node.
+
+    The self-check above allows each node the round-off its ``g V`` terms can carry; where
+    conductances span very many decades (a femto-ohm jumper beside a kilo-ohm branch) that
+    allowance can cover a residual of a few percent, and no current there can be recovered from
+    its neighbours. Such an answer has no trustworthy currents at that node: it is refused
+    rather than shown with currents that do not add up."""
+    if not bt.n_nodes or not len(i):
+        return
+    n = bt.n_nodes
+    res = np.abs(_leaving(bt.a, bt.b, n, i))
+    meet = _incident(bt.a, bt.b, n, np.abs(i))
+    source = float(np.abs(bt.c).max(initial=0.0)) if len(bt.c) else 0.0
+    # ground included: its balance is the sum of every other node's, and is shown like theirs
+    allow = SHOWN_REL * meet + SHOWN_FLOOR * float(np.abs(i).max(initial=0.0)) + SHOWN_SOURCE_FLOOR * source
+    over = res - allow
+    if (over > 0).any():
+        k = int(np.argmax(over))
+        raise NumericalError(
+            f"the currents at node '{bt.node_names[k]}' cannot be resolved: they add up to {res[k]:.3g} A "
+            f"beside {meet[k]:.3g} A that meet there, because the circuit's conductances span too many "
+            "decades for the solve's round-off",
+            **_node_culprits(bt, bt.node_names[k]),
+        )
+
+
+def _check_source_limits(bt: BranchTable, i: np.ndarray) -> None:
+    """No current-limited source is shown delivering more than its ``imax``.
+
+    Newton switches such a source to its limit only when holding its voltage would take more than
+    ``imax`` beyond the round-off of the solve; where that round-off is huge (femto-ohm parts
+    beside a kilo-volt source) it could stay "holding" while delivering a short-circuit current
+    thousands of times its limit. Such an answer breaks the source's own law and is refused."""
+    if "source" not in bt.groups:
+        return
+    pos, cols = bt.groups["source"]
+    imax = cols["imax"]
+    limited = ~np.isnan(imax)
+    if not limited.any():
+        return
+    p, lim = pos[limited], imax[limited]
+    over = -i[p] - lim * (1 + 1e-9)
+    if (over > 0).any():
+        k = int(np.argmax(over))
+        name = bt.names[p[k]]
+        raise NumericalError(
+            f"the solve shows current-limited source {name} delivering {-i[p[k]]:.4g} A, beyond its limit of "
+            f"{lim[k]:.4g} A: its mode could not be settled within the solve's round-off",
+            culprits=(name,),
+            element=name,
+            hint="element values may span too many decades; check for extreme resistances (a tiny one can often be a link)",
+        )
+
+
+def zero_within_bounds(bt: BranchTable, i: np.ndarray, bounds: np.ndarray) -> np.ndarray:
+    """Currents within their round-off bounds set to exactly zero, except where Kirchhoff's law
+    shows they are real.
+
+    The bounds are worst-case figures; in a stiff network (a micro-ohm fuse beside kilo-ohm
+    parts) they can exceed a current that is plainly there: a 67 mA fuse current once showed as
+    0 A and its check passed. So a node whose balance the zeroing breaks (its residual grows past
+    the self-check's share of the currents meeting there) gets back the currents zeroed at it,
+    as the solve computed them; repeated until no node is broken that way."""
+    zero = (np.abs(i) <= bounds) & (i != 0)
+    if not zero.any() or not bt.n_nodes:
+        return np.where(zero, 0.0, i)
+    n = bt.n_nodes
+    before = np.abs(_leaving(bt.a, bt.b, n, i))
+    allow = before + REFUSE_REL * _incident(bt.a, bt.b, n, np.abs(i))
+    allow[bt.ground] = np.inf  # no equation of its own
+    for _ in range(len(i)):
+        after = np.abs(_leaving(bt.a, bt.b, n, np.where(zero, 0.0, i)))
+        broken = after > allow
+        back = zero & (broken[bt.a] | broken[bt.b])
+        if not back.any():
+            break
+        zero &= ~back
+    return np.where(zero, 0.0, i)
 
 
 def recover_currents(bt: BranchTable, i: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -49,7 +49,7 @@ class Source(Kind):
     def exact_current(self, cols, v, i, mode):
         r, emf, imax = cols["r"], cols["emf"], cols["imax"]
         ideal = ~(r > 0)
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # only rows it picks matter; a non-finite current is refused later
             held = np.where(ideal, i, (v - emf) / r)
         return np.where(mode == LIMIT, -imax, held)
 

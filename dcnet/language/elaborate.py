@@ -246,7 +246,7 @@ def read_stdin(options: Options | None = None, stream=None) -> str:
     except OSError as exc:
         raise InputError(f"cannot read standard input: {exc.strerror or exc}", span=Span("<stdin>")) from None
     if isinstance(data, str):  # a text stream without a buffer (tests)
-        data = data.encode("utf-8")
+        data = data.encode("utf-8", "surrogatepass")  # a lone surrogate then fails as not UTF-8
     return _decode(data, "<stdin>")
 
 

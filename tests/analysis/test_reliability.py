@@ -7,6 +7,7 @@ with scipy's brentq, or a nodal solve in exact fractions.
 from __future__ import annotations
 
 import math
+from pathlib import Path
 from fractions import Fraction
 
 import numpy as np
@@ -315,3 +316,121 @@ def test_the_elements_named_as_not_settled_are_those_at_the_nodes_that_do_not_ba
     with pytest.raises(ConvergenceError) as info:
         _raise_unsettled(bt, groups, state, [{"phase": "newton", "iteration": 1, "step_V": 0.0, "residual_A": 0.0}])
     assert info.value.culprits[0] == "D177"
+
+
+# ------------------------------------------------------------------ what is shown must add up
+# (found by the fuzz campaign of bench/fuzz_run.py after the per-node self-check landed)
+
+
+def _node_balance(net, sol):
+    """Kirchhoff's current law at every node, recomputed here from the currents shown and the
+    netlist's node lists: (largest |sum| / sum of |currents| meeting there) over the nodes."""
+    total, meet = {}, {}
+    for e in net.elements:
+        a, b = e.nodes[0], e.nodes[1]
+        if a == b:
+            continue
+        x = sol.current(e.name)
+        total[a] = total.get(a, 0.0) + x
+        total[b] = total.get(b, 0.0) - x
+        meet[a] = meet.get(a, 0.0) + abs(x)
+        meet[b] = meet.get(b, 0.0) + abs(x)
+    return max((abs(total[n]) / meet[n] for n in total if meet[n] > 0), default=0.0)
+
+
+def test_a_micro_ohm_fuse_current_is_not_shown_as_zero():
+    """A 1 V cell (1 Ohm inside), 14 Ohm and a 0.5 micro-ohm fuse rated 50 mA in one loop: the
+    fuse carries I = E / (R + r + r_fuse) (Ohm's law around the loop) = 66.7 mA and fails its
+    check. Its round-off bound once exceeded the current, which was shown as 0 A with a PASS."""
+    text = """cell B a gnd emf=1V r=1Ohm
+resistor R a f r=14Ohm
+fuse F f gnd rating=50mA r=0.5uOhm
+ground gnd
+"""
+    net = dcnet.parse(text, "loop.dcn")
+    sol = net.solve()
+    expect = 1.0 / (1.0 + 14.0 + 0.5e-6)
+    assert sol.current("F") == pytest.approx(expect, rel=1e-9)
+    assert any(v.rule == "fuse loading" and not v.ok for v in sol.verdicts)
+
+
+BOAT_WITH_FEMTO_JUMPER = (Path(__file__).resolve().parents[2] / "circuits" / "boat-house-bank.dcn").read_text() + """
+resistor FZLO38 h3+ dist+ r=1e-15Ohm
+resistor FZHI39 dist+ h3+ r=1e12Ohm
+"""
+
+
+def test_currents_that_cannot_be_resolved_are_refused_not_shown_unbalanced():
+    """A femto-ohm jumper across a boat's bank and panel: its current is g dV with g = 1e15 S, so
+    round-off of the potentials is amperes there and no neighbour gives it by Kirchhoff's law.
+    The answer was shown with the panel's currents off by 1.3 A of 164 A (0.8 %). Either the
+    currents shown balance at every node (to 1e-6, recomputed here) or the circuit is refused."""
+    net = dcnet.parse(BOAT_WITH_FEMTO_JUMPER, "boat.dcn")
+    try:
+        sol = net.solve()
+    except NumericalError as err:
+        assert "cannot be resolved" in str(err) or "does not verify" in str(err)
+        return
+    assert _node_balance(net, sol) <= 1e-6
+
+
+LIMITED_SOURCE_AMONG_PICO_OHMS = """load E0 n4 n3 r=821698.4853664411Ohm
+source E1 n1 n2 emf=79987.10918411076V r=1.9Ohm imax=0.5A
+diode E2 n4 n5 is=6.008940510883035e-07A n=1.1705911022345485
+link E3 n4 n4 r=969971.571047311Ohm
+resistor E4 n1 n5 r=1.000001Ohm
+fuse E5 n2 n1 rating=990408.8317177087A
+fuse E6 n2 n2 rating=356396.4429527379A r=555727.5109176517Ohm
+fuse E7 n3 n5 rating=6.103515625e-05A
+load E8 n4 n6 power=1e-05W
+resistor E9 n3 n0 r=0.99999Ohm
+diode E10 n1 n4 is=4.482947709529404e-07A n=2.1936217165099756
+load E11 n1 n5 r=320207.86530261167Ohm
+resistor FZLO12 n4 n4 r=1e-12Ohm
+resistor FZHI13 n1 n2 r=1e15Ohm
+resistor FZLO14 n4 n2 r=1e-12Ohm
+resistor FZHI15 n2 n1 r=1e15Ohm
+resistor FZLO16 n3 n1 r=1e-12Ohm
+resistor FZHI17 n1 n2 r=1e15Ohm
+"""
+
+
+def test_a_current_limited_source_is_never_shown_beyond_its_limit():
+    """An 80 kV source limited to 0.5 A, shorted by a fuse among pico-ohm resistors: it was shown
+    delivering 42 kA (its unlimited short-circuit current emf / r) in its holding mode. Either
+    it is shown at most at its limit or the answer is refused."""
+    net = dcnet.parse(LIMITED_SOURCE_AMONG_PICO_OHMS, "lim.dcn")
+    try:
+        sol = net.solve(checks=False)
+    except NumericalError as err:
+        assert "beyond its limit" in str(err) or "cannot be resolved" in str(err)
+        return
+    assert -sol.current("E1") <= 0.5 * (1 + 1e-9)
+
+
+def test_numpy_floating_point_warnings_never_escape_the_python_api():
+    """An overflow inside the solve is dcnet's NumericalError from the API too (dcnet/floating.py),
+    not a numpy warning and an infinity carried on."""
+    import warnings
+
+    text = """load E0 n1 n0 current=89785.21898886644A
+source E1 n2 n0 emf=665365.8701834542V
+load E2 n3 n4 current=2.00001A
+load E3 n1 n5 current=921657.0818618339A
+source E4 n5 n4 emf=60.0V r=290078.4965141022Ohm imax=126198.99266673559A
+load E5 n3 n2 power=999999.0W
+supply E6 n0 n1 current=991854.3130585109A
+source E8 n0 n1 emf=37571.43247276683V
+link E9 n4 n0
+supply E10 n4 n3 current=885777.1425457023A
+source E11 n3 n2 emf=319864.41953447537V r=0.1Ohm imax=602198.1714446576A
+ground n2
+"""
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        try:
+            sol = dcnet.parse(text, "huge.dcn").solve(checks=False)
+        except dcnet.DcnetError:
+            return
+    net = dcnet.parse(text, "huge.dcn")
+    assert _node_balance(net, sol) <= 1e-6

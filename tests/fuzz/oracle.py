@@ -37,6 +37,26 @@ def _num(x) -> float | None:
     return x if math.isfinite(x) else None
 
 
+#: a double-precision nodal solve carries each source's term (a cell's EMF / r, a supply's current)
+#: with a relative round-off of a few times 1e-16; currents far below that term cannot be resolved
+#: at all (a 1 micro-ohm cell at 250 kV has a 2.5e11 A term): 1e-12 of the largest such term,
+#: about 4,500 units of round-off, is admitted as the floor of the node balance
+SOURCE_ROUND_OFF = 1e-12
+
+
+def _source_scale(net) -> float:
+    """The largest source term of the network, from the netlist's own values: |emf| / r of cells
+    and sources with a resistance, |current| of supplies and constant-current loads."""
+    out = 0.0
+    for e in net.elements:
+        emf, r, cur = _num(e.values.get("emf")), _num(e.values.get("r")), _num(e.values.get("current"))
+        if emf is not None and r is not None and r > 0:
+            out = max(out, abs(emf) / r)
+        if cur is not None:
+            out = max(out, abs(cur))
+    return out
+
+
 def kcl_violations(net, potentials, currents) -> list[str]:
     """Nodes where the currents leaving do not sum to zero.
 
@@ -62,7 +82,7 @@ def kcl_violations(net, potentials, currents) -> list[str]:
         balance[b] -= i[k]
         meet[a] += abs(i[k])
         meet[b] += abs(i[k])
-    floor = ROUND_OFF * (np.abs(i).max() if len(i) else 0.0)
+    floor = ROUND_OFF * (np.abs(i).max() if len(i) else 0.0) + SOURCE_ROUND_OFF * _source_scale(net)
     names = list(net.node_index)
     out = []
     for n in np.flatnonzero(np.abs(balance) > KCL_RELATIVE * meet + floor):

@@ -22,11 +22,9 @@ from .strategies import BIG_SEED, FAULT_SEED_DIR, any_input, extreme_netlist, ho
 
 BUDGET = int(os.environ.get("DCNET_FUZZ_EXAMPLES", "200"))
 SETTINGS = settings(max_examples=BUDGET, deadline=None, suppress_health_check=list(HealthCheck))
-#: the hostile families do not shrink: while issue 13's faults are open they fail (marked xfail)
-#: and shrinking their many failures would take minutes; bench/fuzz_run.py keeps the shortest
-#: input of each fault class instead
+#: the hostile families do not shrink: a failure is reported as drawn (shrinking a hostile input
+#: can take minutes); bench/fuzz_run.py keeps the shortest input of each fault class instead
 HOSTILE = settings(SETTINGS, phases=[Phase.explicit, Phase.reuse, Phase.generate])
-ISSUE13 = "issue 13 fix on another branch"
 
 
 def check_one(text: str) -> str:
@@ -116,8 +114,7 @@ def test_mutated_demo_files(text):
     check_one(text)
 
 
-@pytest.mark.xfail(strict=False, reason=ISSUE13 + ": the per-node Kirchhoff check finds zeroed currents")
-@HOSTILE
+@SETTINGS
 @given(valid_netlist())
 def test_random_valid_netlists(text):
     check_one(text)
@@ -129,7 +126,6 @@ def test_cli_never_shows_a_traceback(text):
     _cli_without_traceback(text)
 
 
-@pytest.mark.xfail(strict=False, reason=ISSUE13)
 @HOSTILE
 @given(st.one_of(hostile_demo, hostile_seed))
 def test_cli_never_shows_a_traceback_on_hostile_input(text):
@@ -165,30 +161,29 @@ def _cli_without_traceback(text):
 # "refused": values or statements that make no physical sense, an error of dcnet's own;
 # "solved": valid circuits; "oracle": either, as long as the answer is physical.
 
-XFAIL = pytest.mark.xfail(strict=False, reason=ISSUE13)
 SEED_EXPECTATIONS = {
-    "cable-minus-250.dcn": ("refused", XFAIL),
-    "fullwidth-digits.dcn": ("refused", XFAIL),
-    "ohm-sign.dcn": ("refused with a hint naming Ohm", XFAIL),
-    "negative-load-current.dcn": ("refused", XFAIL),
-    "subnormal-ohm.dcn": ("refused", XFAIL),
+    "cable-minus-250.dcn": ("refused", None),
+    "fullwidth-digits.dcn": ("refused", None),
+    "ohm-sign.dcn": ("refused with a hint naming Ohm", None),
+    "negative-load-current.dcn": ("refused", None),
+    "subnormal-ohm.dcn": ("refused", None),
     "limit-among-nothing.dcn": ("refused", None),
-    "limit-among-unknown.dcn": ("refused", XFAIL),
-    "limit-among-duplicate.dcn": ("refused", XFAIL),
-    "nul-include.dcn": ("refused", XFAIL),
-    "limit-unknown-element.dcn": ("refused", XFAIL),
-    "load-at-power-limit.dcn": ("refused with the power-limit message", XFAIL),
-    "isolator-inverter-solar.dcn": ("solved", XFAIL),
-    "ideal-source-junction-diode.dcn": ("oracle", XFAIL),
-    "nano-giga-ohm.dcn": ("solved", XFAIL),
+    "limit-among-unknown.dcn": ("refused", None),
+    "limit-among-duplicate.dcn": ("refused", None),
+    "nul-include.dcn": ("refused", None),
+    "limit-unknown-element.dcn": ("refused", None),
+    "load-at-power-limit.dcn": ("refused with the power-limit message", None),
+    "isolator-inverter-solar.dcn": ("solved", None),
+    "ideal-source-junction-diode.dcn": ("oracle", None),
+    "nano-giga-ohm.dcn": ("solved", None),
     "many-cp-loads.dcn": ("solved", None),
     "many-diode-branches.dcn": ("solved", None),
-    "many-diode-resistor-branches.dcn": ("solved", XFAIL),
-    "zeroed-cable-current.dcn": ("solved", XFAIL),
-    "fuse-current-zeroed.dcn": ("solved, checks fail", XFAIL),
-    "newton-subnormal-ideality.dcn": ("refused", XFAIL),
-    "short-load-zeroed.dcn": ("oracle", XFAIL),
-    "diode-absolute-zero.dcn": ("refused", XFAIL),
+    "many-diode-resistor-branches.dcn": ("solved", None),
+    "zeroed-cable-current.dcn": ("solved", None),
+    "fuse-current-zeroed.dcn": ("solved, checks fail", None),
+    "newton-subnormal-ideality.dcn": ("refused", None),
+    "short-load-zeroed.dcn": ("oracle", None),
+    "diode-absolute-zero.dcn": ("refused", None),
 }
 
 
@@ -219,24 +214,21 @@ def test_fault_seed(path, expect):
     if "power-limit" in expect:
         with pytest.raises(DcnetError) as err:
             dcnet.parse(text, "fuzz.dcn").solve()
-        assert "did not settle" not in str(err.value) and "power" in str(err.value), err.value.render()
+        assert "did not settle" not in str(err.value) and "at most" in str(err.value) and "limit" in str(err.value), err.value.render()
 
 
-@pytest.mark.xfail(strict=False, reason=ISSUE13)
 @HOSTILE
 @given(hostile_demo)
 def test_hostile_mutations_of_the_demos(text):
     check_one(text)
 
 
-@pytest.mark.xfail(strict=False, reason=ISSUE13)
 @HOSTILE
 @given(hostile_seed)
 def test_hostile_mutations_of_the_fault_seeds(text):
     check_one(text)
 
 
-@pytest.mark.xfail(strict=False, reason=ISSUE13)
 @HOSTILE
 @given(extreme_netlist())
 def test_netlists_over_eighteen_decades(text):
