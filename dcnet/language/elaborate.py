@@ -263,16 +263,20 @@ def _read(p: Path, options: Options, span: Span | None) -> str:
             data = _read_bounded(fh, options.max_file_bytes, str(p), span)
     except IsADirectoryError:
         raise InputError(f"{p} is a folder, not a circuit file", span=span) from None
-    except FileNotFoundError:
-        cls = IncludeError if span else InputError
-        raise cls(f"file not found: {p}", span=span) from None
-    except PermissionError:
-        raise InputError(f"cannot read {p}: permission denied", span=span) from None
-    except OSError as exc:
-        raise InputError(f"cannot read {p}: {exc.strerror or exc}", span=span) from None
-    except ValueError as exc:  # a NUL byte in the name
-        raise InputError(f"cannot read {str(p)!r}: {exc}", span=span, hint="a file name cannot hold a NUL character") from None
+    except (OSError, ValueError) as exc:
+        raise _open_error(exc, p, span) from None
     return _decode(data, str(p))
+
+
+def _open_error(exc: OSError | ValueError, p: Path, span: Span | None) -> InputError:
+    """The error for a file that cannot be opened or read (an include's, with its span)."""
+    if isinstance(exc, FileNotFoundError):
+        return (IncludeError if span else InputError)(f"file not found: {p}", span=span)
+    if isinstance(exc, PermissionError):
+        return InputError(f"cannot read {p}: permission denied", span=span)
+    if isinstance(exc, ValueError):  # a NUL byte in the name
+        return InputError(f"cannot read {str(p)!r}: {exc}", span=span, hint="a file name cannot hold a NUL character")
+    return InputError(f"cannot read {p}: {exc.strerror or exc}", span=span)
 
 
 _NOT_REGULAR = {stat.S_IFIFO: "a named pipe", stat.S_IFCHR: "a character device", stat.S_IFBLK: "a block device", stat.S_IFSOCK: "a socket", stat.S_IFDIR: "a folder"}
@@ -285,14 +289,8 @@ def _read_include(st: _State, p: Path, rel: str, span: Span) -> str:
     options = st.options
     try:
         fd = os.open(p, os.O_RDONLY | os.O_NONBLOCK | getattr(os, "O_CLOEXEC", 0))
-    except FileNotFoundError:
-        raise IncludeError(f"file not found: {p}", span=span) from None
-    except PermissionError:
-        raise InputError(f"cannot read {p}: permission denied", span=span) from None
-    except OSError as exc:
-        raise InputError(f"cannot read {p}: {exc.strerror or exc}", span=span) from None
-    except ValueError as exc:  # a NUL byte in the name
-        raise InputError(f"cannot read {str(p)!r}: {exc}", span=span, hint="a file name cannot hold a NUL character") from None
+    except (OSError, ValueError) as exc:
+        raise _open_error(exc, p, span) from None
     with os.fdopen(fd, "rb") as fh:
         info = os.fstat(fh.fileno())
         if not stat.S_ISREG(info.st_mode):
@@ -311,7 +309,7 @@ def _read_include(st: _State, p: Path, rel: str, span: Span) -> str:
         try:
             data = fh.read(options.max_file_bytes + 1)
         except OSError as exc:
-            raise InputError(f"cannot read {p}: {exc.strerror}", span=span) from None
+            raise _open_error(exc, p, span) from None
     if len(data) > options.max_file_bytes:
         raise LimitError(f"{p} is more than {options.max_file_bytes:,} bytes", span=span, hint="raise it with --max-file-bytes if the file is trusted")
     st.bytes_read += len(data)
