@@ -87,6 +87,18 @@ def main(argv: list[str] | None = None) -> int:
         return 143 if term else 130
     except BrokenPipeError:
         return EXIT_OK
+    except (MemoryError, RecursionError) as exc:
+        print(f"dcnet: the work ran out of {'memory' if isinstance(exc, MemoryError) else 'stack'} ({type(exc).__name__}); "
+              "hint: the circuit may be too large for this machine, or the --max-* limits too high", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except Exception as exc:  # a fault of dcnet's own: a message, not a traceback (DCNET_DEBUG=1 shows it)
+        import os
+
+        if os.environ.get("DCNET_DEBUG"):
+            raise
+        print(f"dcnet: internal fault in dcnet ({type(exc).__name__}: {exc}); this is a fault of dcnet, not of your "
+              "circuit: please report it with the circuit file (DCNET_DEBUG=1 shows the traceback)", file=sys.stderr)
+        return EXIT_BAD_INPUT
     finally:
         if before is not None:
             signal.signal(signal.SIGTERM, before)

@@ -150,3 +150,26 @@ def test_verbose_prints_the_iterations(capsys):
     assert code == 0
     assert "nonlinear solve" in err and "residual" in err
     assert "2.000 kW" in out
+
+
+def test_a_fault_of_dcnet_itself_is_a_message_and_exit_2_not_a_traceback(monkeypatch, capsys):
+    """Anything dcnet did not foresee (here a KeyError planted in the solve command) ends with a
+    message that says it is dcnet's fault and how to see the traceback, exit 2; DCNET_DEBUG=1
+    lets the exception through for a developer."""
+    import pytest
+
+    from dcnet import cli
+    from dcnet.commands import solve as solve_command
+
+    def broken(args):
+        raise KeyError("planted")
+
+    monkeypatch.setattr(solve_command, "run", broken)
+    monkeypatch.delenv("DCNET_DEBUG", raising=False)
+    code = cli.main(["solve", str(Path(__file__).resolve().parents[1] / "circuits" / "cabin.dcn")])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert "internal fault in dcnet (KeyError" in err and "Traceback" not in err
+    monkeypatch.setenv("DCNET_DEBUG", "1")
+    with pytest.raises(KeyError):
+        cli.main(["solve", str(Path(__file__).resolve().parents[1] / "circuits" / "cabin.dcn")])

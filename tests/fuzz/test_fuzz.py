@@ -149,6 +149,7 @@ def _cli_without_traceback(text):
             sys.stdin = old
     assert code in (0, 1, 2)
     assert "Traceback" not in err.getvalue()
+    assert "internal fault" not in err.getvalue(), err.getvalue()  # the CLI's catch-all hides no fault from the fuzzer
     numpy_warnings = [w for w in caught if issubclass(w.category, RuntimeWarning)]
     assert not numpy_warnings, f"RuntimeWarning: {numpy_warnings[0].message} ({numpy_warnings[0].filename}:{numpy_warnings[0].lineno})"
     if code == 2:
