@@ -140,14 +140,24 @@ def _death(procs) -> str:
     import signal
 
     deadline = time.monotonic() + 1.0
-    codes = []
-    for p in procs:
-        try:
-            p.join(max(0.0, deadline - time.monotonic()))  # a dead worker is reaped a moment after its pool knows
-        except (OSError, ValueError, AssertionError):
-            pass
-        if p.exitcode:
-            codes.append(p.exitcode)
+    ended: dict = {}
+    while True:
+        for p in procs:
+            if id(p) in ended:
+                continue
+            try:
+                p.join(max(0.0, min(0.05, deadline - time.monotonic())))  # a dead worker is reaped a moment after its pool knows
+                code = p.exitcode
+            except (OSError, ValueError, AssertionError):
+                code = None
+            # the pool's own thread may reap the same process at the same moment: the reading that loses
+            # that race sees no status yet (None), so a process is read again until the deadline
+            if code is not None:
+                ended[id(p)] = code
+        if len(ended) == len(procs) or time.monotonic() >= deadline:
+            break
+        time.sleep(0.01)
+    codes = [c for c in ended.values() if c]
     codes.sort(key=lambda c: c == -signal.SIGTERM)
     for code in codes:
         if code < 0:
