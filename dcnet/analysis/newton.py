@@ -33,6 +33,7 @@ __all__ = ["NewtonResult", "newton_solve", "VTOL", "ITOL", "MAX_ITER"]
 
 VTOL = 1e-9  # volts, plus the same relative to the largest potential
 ITOL = 1e-9  # relative to the current scale
+LOCAL_ITOL = 1e-6  # relative to the other currents at an element's quieter node
 MAX_ITER = 60
 #: iterations in a row that switch some mode before Newton starts again from everything on
 CYCLE = 6
@@ -100,20 +101,41 @@ def _model(bt: BranchTable, groups: list[_Group], v: np.ndarray, i: np.ndarray, 
     # the scale the linear elements set (their source currents, and conductance times EMF),
     # not to the iterate's own currents, which a junction far from its answer can blow up
     lin = ~bt.nonlinear & ~bt.is_voltage
-    itol = ITOL * max(
+    itol_all = ITOL * max(
         float(np.abs(bt.c[lin]).max(initial=0.0)),
         float(np.abs(bt.g[lin]).max(initial=0.0)) * max(bt.max_emf, float(np.abs(v).max(initial=0.0))),
     )
+    itol = _local_itol(bt, i, itol_all)
     leak = np.full(len(g), np.nan)
     for grp in groups:
         cols = grp.cols
         if scale != 1.0:
             cols = _scaled(grp, scale)
-        br, grp.mode, grp.prev = grp.kind.companion(cols, v[grp.pos], i[grp.pos], grp.mode, grp.prev, itol=itol)
+        br, grp.mode, grp.prev = grp.kind.companion(cols, v[grp.pos], i[grp.pos], grp.mode, grp.prev, itol=itol[grp.pos])
         is_v[grp.pos], g[grp.pos], c[grp.pos], e[grp.pos] = br.is_voltage, br.g, br.c, br.e
         if br.leak is not None:
             leak[grp.pos] = br.leak
     return dataclasses.replace(bt, is_voltage=is_v, g=g, c=c, e=e, leak=leak)
+
+
+def _local_itol(bt: BranchTable, i: np.ndarray, itol_all: float) -> np.ndarray:
+    """Per element, the round-off below which its current does not switch a mode.
+
+    The network-wide figure alone let a kiloampere branch elsewhere hide a real reverse
+    current of 44 mA in an ideal diode whose other node meets only milliamperes: the answer
+    then had the wrong diode state and every current around it wrong. An element's current
+    is what Kirchhoff's law leaves at either of its nodes, so it is judged against the
+    currents of the other elements at its quieter node (``LOCAL_ITOL`` of them), and never
+    more loosely than the network-wide figure.
+    """
+    n = bt.n_nodes
+    mag = np.abs(np.nan_to_num(i, nan=0.0, posinf=0.0, neginf=0.0))
+    meet = np.zeros(n)
+    np.add.at(meet, bt.a, mag)
+    np.add.at(meet, bt.b, mag)
+    other = np.minimum(meet[bt.a] - mag, meet[bt.b] - mag)
+    local = LOCAL_ITOL * np.maximum(other, 0.0)
+    return np.minimum(itol_all, np.maximum(local, 1e-12 * itol_all))
 
 
 def _scaled(grp: _Group, s: float) -> dict[str, np.ndarray]:
@@ -472,10 +494,28 @@ def _raise_unsettled(bt, groups, state, history):
         f"elements that did not settle: {', '.join(names)}",
         culprits=tuple(names),
         element=names[0] if names else None,
-        hint=f"last iterations: {summary}" if summary else None,
+        hint=_unsettled_hint(bt, summary),
     )
     err.history = history
     raise err
+
+
+def _unsettled_hint(bt: BranchTable, summary: str) -> str | None:
+    """The last iterations, and where the values span so many decades that currents computed
+    from potentials carry more round-off than the tolerance, that cause first."""
+    from .solve import SPAN_WARN_DECADES, value_span
+
+    parts = []
+    span = value_span(bt)
+    if span > SPAN_WARN_DECADES:
+        parts.append(
+            f"element conductances span {span:.0f} decades, so a current computed across the smallest resistance "
+            "carries round-off beyond what Kirchhoff's law allows (check for extreme resistances or a missing unit "
+            "prefix; a link stands for a negligible connection)"
+        )
+    if summary:
+        parts.append(f"last iterations: {summary}")
+    return "; ".join(parts) or None
 
 
 def _check_power_demands(bt: BranchTable, frozen=None, dropped: set[int] = frozenset()) -> set[int]:
