@@ -558,7 +558,10 @@ def _check_reported_balance(bt: BranchTable, i: np.ndarray) -> None:
     n = bt.n_nodes
     res = np.abs(_leaving(bt.a, bt.b, n, i))
     meet = _incident(bt.a, bt.b, n, np.abs(i))
-    source = float(np.abs(bt.c).max(initial=0.0)) if len(bt.c) else 0.0
+    # the source terms of the circuit's own sources; a nonlinear element's companion term is a
+    # device of the solve (a femto-ohm diode's -drop/r is 4e14 A) and no source of current
+    own = ~bt.nonlinear if bt.nonlinear is not None else np.ones(len(bt.c), dtype=bool)
+    source = float(np.abs(bt.c[own]).max(initial=0.0)) if len(bt.c) else 0.0
     # ground included: its balance is the sum of every other node's, and is shown like theirs
     allow = SHOWN_REL * meet + SHOWN_FLOOR * float(np.abs(i).max(initial=0.0)) + SHOWN_SOURCE_FLOOR * source
     over = res - allow
@@ -568,8 +571,26 @@ def _check_reported_balance(bt: BranchTable, i: np.ndarray) -> None:
             f"the currents at node '{bt.node_names[k]}' cannot be resolved: they add up to {res[k]:.3g} A "
             f"beside {meet[k]:.3g} A that meet there, because the circuit's conductances span too many "
             "decades for the solve's round-off",
-            **_node_culprits(bt, bt.node_names[k]),
+            **_stiffest(bt, _node_culprits(bt, bt.node_names[k])),
         )
+
+
+def _stiffest(bt: BranchTable, found: dict) -> dict:
+    """Add the element of the smallest resistance (as the solve modelled it) to an error's
+    culprits and hint: its round-off, times its conductance, is what no node can absorb."""
+    g = np.where(bt.is_voltage, 0.0, np.abs(bt.g))
+    if not len(g) or not g.max() > 0:
+        return found
+    k = int(np.argmax(g))
+    name = bt.names[k]
+    out = dict(found)
+    out["culprits"] = (name,) + tuple(x for x in found.get("culprits", ()) if x != name)
+    out["element"] = name
+    out["hint"] = (
+        f"the smallest resistance is {name}'s, {1 / g[k]:.3g} Ohm: leave its r out where it stands for an ideal "
+        f"connection (or use a link); {found.get('hint', '')}"
+    ).rstrip("; ")
+    return out
 
 
 def _check_source_limits(bt: BranchTable, i: np.ndarray) -> None:
