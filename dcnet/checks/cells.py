@@ -48,7 +48,9 @@ def _window_note(name, emf, chem, chem_name) -> str:
     if hi < lo or hi < 1:
         why = f"no whole number of {chem_name} cells rests at {emf:.4g} V ({lo_v:g} to {hi_v:g} V per cell)"
     else:
-        counts = ", ".join(str(k) for k in range(max(lo, 1), hi + 1))
+        first = max(lo, 1)
+        # a range, not a list, where many fit (an absurd EMF of 1e12 V once listed billions)
+        counts = ", ".join(str(k) for k in range(first, hi + 1)) if hi - first < 6 else f"any of {first:,} to {hi:,}"
         why = f"{emf:.4g} V fits {counts} {chem_name} cells in series ({lo_v:g} to {hi_v:g} V per cell at rest)"
     return (
         f"cell {name}: terminal-voltage window not checked: {why}, and dcnet does not guess the count; "

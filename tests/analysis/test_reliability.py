@@ -434,3 +434,128 @@ ground n2
             return
     net = dcnet.parse(text, "huge.dcn")
     assert _node_balance(net, sol) <= 1e-6
+
+
+# --- a diode's switching round-off is judged at its own nodes, not by the largest current ------
+
+_QUIET_DIODE = """\
+cell     E0 n0 n4 emf=238244.896022455V r=0.99999Ohm
+source   E1 n0 n1 emf=584384.0534576589V r=172876.43049450812Ohm
+diode    E3 n0 n6 drop=1.6817659586232714V
+source   E4 n6 n1 emf=620982.2012098446V r=665157.0951611362Ohm
+resistor E5 n6 n4 r=180395.1446006565Ohm
+resistor E6 n3 n4 r=83.8uOhm
+diode    E7 n0 n3 drop=1.538527235819442V
+ground n1
+"""
+
+
+def test_a_reverse_milliamp_in_an_ideal_diode_is_not_hidden_by_a_kiloamp_loop_elsewhere():
+    # found by the fuzz campaign (reduced): a 238 kA loop through E7 made the network-wide
+    # switching round-off about 7 A, so E3 was kept conducting with 44 mA *reverse* current and
+    # E5 was shown at 110 uA instead of 36 mA. Reference: the nodal equations written here with
+    # E7 conducting (an ideal drop) and E3 open, then both states checked for consistency.
+    F = Fraction
+    e0, r0 = F("238244.896022455"), F("0.99999")
+    e1, r1 = F("584384.0534576589"), F("172876.43049450812")
+    e4, r4 = F("620982.2012098446"), F("665157.0951611362")
+    r5, r6 = F("180395.1446006565"), F("83.8e-6")
+    d3, d7 = F("1.6817659586232714"), F("1.538527235819442")
+    # unknowns V0, V4, V6 (V1 = 0, V3 = V0 - d7), in exact fractions; E0 pushes
+    # (e0 - (V0 - V4)) / r0 into n0.  n6: (e4 - V6)/r4 = (V6 - V4)/r5 gives V6 = a + b V4
+    a = (e4 / r4) / (1 / r4 + 1 / r5)
+    b = (1 / r5) / (1 / r4 + 1 / r5)
+    # n0: (e0 - V0 + V4)/r0 + (e1 - V0)/r1 - (V0 - d7 - V4)/r6 = 0
+    # n4: -(e0 - V0 + V4)/r0 + (V6 - V4)/r5 + (V0 - d7 - V4)/r6 = 0
+    # their sum: (e1 - V0)/r1 + (a + (b - 1) V4)/r5 = 0 gives V0 = p + q V4
+    p = e1 + r1 * a / r5
+    q = r1 * (b - 1) / r5
+    # substitute in n0 and solve the one linear equation for V4
+    c0 = (e0 - p) / r0 + (e1 - p) / r1 - (p - d7) / r6
+    c1 = (-q + 1) / r0 - q / r1 - (q - 1) / r6
+    v4 = -c0 / c1
+    v0, v6 = p + q * v4, a + b * v4
+    i7 = (v0 - d7 - v4) / r6
+    i5 = (v6 - v4) / r5
+    assert (e4 - v6) / r4 == i5 and (e0 - v0 + v4) / r0 + (e1 - v0) / r1 == i7  # exact balance at n6, n0
+    assert i7 > 0 and v0 - v6 < d3  # the states assumed are the consistent ones
+    sol = dcnet.parse(_QUIET_DIODE).solve()
+    assert sol.current("E3") == 0.0 and sol.state("E3") == "blocked"
+    assert sol.current("E5") == pytest.approx(float(i5), rel=1e-6)  # about 36 mA
+    assert sol.potential("n6") - sol.potential("n0") == pytest.approx(float(v6 - v0), rel=1e-6)  # about 6.5 kV reverse
+
+
+# --- the potential bound where conductances span 18 decades ------------------------------------
+
+
+def _exact_resistance(edges, nodes, u, w):
+    """Resistance between u and w: the grounded Laplacian (w at 0 V, 1 A into u) solved by
+    Gaussian elimination in exact fractions."""
+    idx = {n: k for k, n in enumerate(x for x in nodes if x != w)}
+    size = len(idx)
+    A = [[Fraction(0)] * (size + 1) for _ in range(size)]
+    for a, b, r in edges:
+        g = 1 / Fraction(r)
+        for x, y in ((a, b), (b, a)):
+            if x in idx:
+                A[idx[x]][idx[x]] += g
+                if y in idx:
+                    A[idx[x]][idx[y]] -= g
+    A[idx[u]][size] = Fraction(1)
+    for col in range(size):
+        piv = next(r for r in range(col, size) if A[r][col] != 0)
+        A[col], A[piv] = A[piv], A[col]
+        for r in range(size):
+            if r != col and A[r][col] != 0:
+                f = A[r][col] / A[col][col]
+                A[r] = [x - f * y for x, y in zip(A[r], A[col])]
+    return A[idx[u]][size] / A[idx[u]][idx[u]]
+
+
+def test_the_potential_bound_holds_where_conductances_span_eighteen_decades():
+    # found by the fuzz campaign: a 1e-5 m cable of 0.64 m2 beside 600 kOhm resistors left the
+    # bound's floating-point Laplacian singular, and the solve ended in numpy's LinAlgError.
+    # Reference: the resistance seen by the supply, in exact fractions (a bridge whose tiny
+    # arms matter only through the large ones); the bound must not be below it (it would then
+    # refuse true answers) and is allowed no more than the tiny resistances above it.
+    from dcnet.analysis.bound import potential_bound
+    from dcnet.analysis.branches import branch_table
+
+    edges = [("q", "a", "1e-12"), ("a", "b", "600e3"), ("a", "c", "600e3"), ("b", "c", "2e-12"),
+             ("b", "0", "300e3"), ("c", "0", "1e6"), ("c", "d", "4.7e3"), ("d", "0", "1e-12")]
+    text = "supply S 0 q current=2A\n" + "".join(f"resistor R{k} {a} {b} r={r}Ohm\n" for k, (a, b, r) in enumerate(edges))
+    exact = _exact_resistance(edges, ["0", "q", "a", "b", "c", "d"], "q", "0")
+    pb = potential_bound(branch_table(dcnet.parse(text + "ground 0\n")))
+    (name, cur, r), = pb.current_terms
+    assert (name, cur) == ("S", 2.0)
+    assert Fraction(r) >= exact
+    assert r <= float(exact) + 4e-12 + 1e-9 * float(exact)
+    assert pb.value == pytest.approx(2 * float(exact), rel=1e-9)
+
+
+# --- the currents shown balance, whatever a diode's companion term -----------------------------
+
+
+@pytest.mark.parametrize("r_diode", [3e-3, 1e-6, 1e-9, 1e-12, 1e-15])
+def test_a_van_isolator_of_any_resistance_is_solved_to_the_closed_form_or_refused(r_diode):
+    # found by the fuzz campaign: an isolator diode of 1e-15 Ohm (written 1e-12 mOhm) had a
+    # companion term -drop/r = 4e14 A, and the balance of the shown currents allowed 1e-12 of it
+    # (400 A), so a 45.08 A battery was shown feeding a 44.74 A diode with every check passed.
+    # Reference: battery E behind RB, diode drop and r in series, bus at V with the inverter's
+    # P/V, the lamp's 1.5 A and the charger's 8 A: (E - d - V)/(RB + r) + 8 = P/V + 1.5, so
+    # V^2 - a V + P (RB + r) = 0 with a = E - d + 6.5 (RB + r); the upper root is the stable point.
+    text = (f"cell HOUSE h+ 0 emf=12.8V r=8mOhm\ndiode ISO h+ bus drop=0.4V r={r_diode!r}Ohm\n"
+            "load INV bus 0 power=600W\nsupply PV bus 0 current=8A\nload LAMP bus 0 current=1.5A\nground 0\n")
+    R = 0.008 + r_diode
+    a = 12.8 - 0.4 + 6.5 * R
+    v_bus = (a + math.sqrt(a * a - 4 * 600 * R)) / 2
+    i_house = (12.8 - 0.4 - v_bus) / R
+    try:
+        sol = dcnet.parse(text).solve()
+    except NumericalError as err:
+        assert r_diode <= 1e-12  # only the absurdly stiff ones may be refused, naming the diode
+        assert err.culprits[0] == "ISO" and "ISO's" in (err.hint or "")
+        return
+    assert sol.potential("bus") == pytest.approx(v_bus, rel=1e-6)
+    assert sol.current("HOUSE") == pytest.approx(-i_house, rel=1e-6)
+    assert sol.current("ISO") == pytest.approx(i_house, rel=1e-6)

@@ -38,6 +38,17 @@ def test_a_24v_lead_acid_battery_at_rest_voltage_is_not_guessed():
     assert "12, 13" in note and "cells=" in note
 
 
+def test_an_absurd_emf_names_the_range_of_counts_not_a_list_of_billions():
+    # found by the fuzz campaign: an EMF of 1e12 V listed every count that fits, one by one, and
+    # ran out of memory. The range is the whole numbers n with n x 1.93 <= 1e12 <= n x 2.17 V
+    # (lead-acid resting range as dcnet's table gives it, REST above)
+    lo_v, hi_v = REST["lead-acid"]
+    sol = dcnet.parse("cell B pos neg emf=1e12V r=1Ohm chemistry=lead-acid\nload L pos neg r=1MOhm\nground neg\n").solve()
+    (note,) = [w for w in sol.warnings if "window not checked" in w]
+    assert f"any of {math.ceil(1e12 / hi_v):,} to {math.floor(1e12 / lo_v):,}" in note
+    assert len(note) < 400
+
+
 def test_a_24v_lead_acid_battery_held_at_2_5_v_per_cell_fails_with_its_count():
     # 12 cells at 2.5 V each = 30 V at the terminals, above 12 x 2.40 = 28.8 V
     sol = solve_with_charger("cell B pos neg emf=25.3V r=10mOhm chemistry=lead-acid cells=12", 31.0, r_ch=2e-3)
