@@ -55,6 +55,22 @@ def test_a_bank_beyond_the_element_limit_is_refused_before_expanding(monkeypatch
     assert "2,001,000 elements" in exc.value.message and "--max-elements" in exc.value.hint
 
 
+def test_the_default_element_limit_refuses_a_bank_of_minutes_and_gigabytes(monkeypatch):
+    # a straps-only 1000 x 1000 bank (1,000,000 cells + 999,000 straps) passed the old default of
+    # 2,000,000 and would have run for minutes in some 9 GB (a 400 x 400 one, 319,600 elements,
+    # took 35 s and 1.4 GB): the default now stops it before anything is expanded
+    import dcnet.language.elaborate as el
+
+    monkeypatch.setattr(el, "add_element", lambda *a, **k: (_ for _ in ()).throw(AssertionError("expanded")))
+    text = "part c cell emf=3.3V r=2mOhm\nbank B p gnd series=1000 parallel=1000 cell=c strap=0.1mOhm\n"
+    with pytest.raises(LimitError) as exc:
+        dcnet.parse(text)
+    assert "1,999,000 elements" in exc.value.message and "500,000" in exc.value.message
+    monkeypatch.undo()
+    ok = dcnet.parse("part c cell emf=3.3V r=2mOhm\nbank B p gnd series=20 parallel=20 cell=c strap=0.1mOhm\nground gnd\n")
+    assert len(ok.elements) == 20 * 20 + 19 * 20
+
+
 def test_a_block_fan_out_is_refused_at_its_use_line(monkeypatch):
     lines = ["cell A p gnd emf=12V r=0.01Ohm", "block L0 (x, y)", "resistor R x y r=1Ohm", "end"]
     for i in range(1, 8):

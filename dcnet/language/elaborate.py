@@ -53,7 +53,7 @@ class Options:
     """Limits and permissions for reading circuit files (see the README)."""
 
     max_file_bytes: int = 20_000_000
-    max_elements: int = 2_000_000
+    max_elements: int = 500_000
     max_include_depth: int = 16
     max_expression_depth: int = 256
     max_block_depth: int = 16  # nesting of block instances (a block that uses a block ...)
