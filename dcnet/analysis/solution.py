@@ -31,6 +31,7 @@ class SampleLookups:
     v: np.ndarray
     i: np.ndarray
     bounds: np.ndarray | None = None
+    vbounds: np.ndarray | None = None
 
     def _pos(self, name: str) -> int:
         return self.netlist.element_position(name)
@@ -55,6 +56,12 @@ class SampleLookups:
         if self.bounds is None:
             return np.zeros(self.i.shape[0])
         return self.bounds[:, self._pos(name)]
+
+    def vbound(self, name: str) -> np.ndarray:
+        """The round-off bound of an element's voltage, per sample (zero where none is known)."""
+        if self.vbounds is None:
+            return np.zeros(self.v.shape[0])
+        return self.vbounds[:, self._pos(name)]
 
     def strings(self, bank: dict) -> tuple[np.ndarray, np.ndarray]:
         """(samples x strings) current of each string of a bank and its round-off bound
@@ -106,6 +113,8 @@ class Solution:
         self.factor = None
         #: the round-off bound of every element current (amperes); currents within it are zero
         self.current_bounds = np.zeros(len(i))
+        #: the round-off bound of every element voltage (volts)
+        self.voltage_bounds = np.zeros(len(i))
         #: parts cut off by open elements (dcnet.analysis.islands.Islands), or None
         self.islands = None
         #: loads that cross into a part with no path to ground: no supply, they draw nothing
