@@ -100,12 +100,7 @@ def _model(bt: BranchTable, groups: list[_Group], v: np.ndarray, i: np.ndarray, 
     # the round-off of currents, which no current switching rule should act on: relative to
     # the scale the linear elements set (their source currents, and conductance times EMF),
     # not to the iterate's own currents, which a junction far from its answer can blow up
-    lin = ~bt.nonlinear & ~bt.is_voltage
-    itol_all = ITOL * max(
-        float(np.abs(bt.c[lin]).max(initial=0.0)),
-        float(np.abs(bt.g[lin]).max(initial=0.0)) * max(bt.max_emf, float(np.abs(v).max(initial=0.0))),
-    )
-    itol = _local_itol(bt, i, itol_all)
+    itol = _switching_tolerance(bt, v, i)
     leak = np.full(len(g), np.nan)
     for grp in groups:
         cols = grp.cols
@@ -116,6 +111,16 @@ def _model(bt: BranchTable, groups: list[_Group], v: np.ndarray, i: np.ndarray, 
         if br.leak is not None:
             leak[grp.pos] = br.leak
     return dataclasses.replace(bt, is_voltage=is_v, g=g, c=c, e=e, leak=leak)
+
+
+def _switching_tolerance(bt: BranchTable, v: np.ndarray, i: np.ndarray) -> np.ndarray:
+    """Per element, the current within which no switching rule acts (see ``_model``)."""
+    lin = ~bt.nonlinear & ~bt.is_voltage
+    itol_all = ITOL * max(
+        float(np.abs(bt.c[lin]).max(initial=0.0)),
+        float(np.abs(bt.g[lin]).max(initial=0.0)) * max(bt.max_emf, float(np.abs(v).max(initial=0.0))),
+    )
+    return _local_itol(bt, i, itol_all)
 
 
 def _local_itol(bt: BranchTable, i: np.ndarray, itol_all: float) -> np.ndarray:
@@ -275,6 +280,11 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
         state = (model, system, factor, x_new, pot, v, i)
         vscale = max(float(np.abs(pot).max(initial=0.0)), 1.0)
         if changed == 0 and step <= VTOL * vscale and settled:
+            switched, impossible = _settled_modes(groups, v)
+            if impossible:
+                return False, state  # a mode with no operating point here: no answer
+            if switched:
+                continue  # modes switched where no operating point of theirs lies: go on from there
             shown = _modes_against_shown_currents(bt, model, groups, v, i, bounds)
             if shown is None:
                 return True, state
@@ -285,26 +295,42 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
     return False, state
 
 
-def _modes_against_shown_currents(bt, model, groups, v, i, bounds):
-    """The currents the solution will show (dcnet.analysis.solve.recover_currents: a current the
-    solve cannot resolve taken from Kirchhoff's law at a neighbouring node), if they would switch
-    some element's mode beyond their own round-off; None where every mode stands.
+def _settled_modes(groups, v) -> tuple[bool, bool]:
+    """Put the settled voltages to the kinds' ``settled_modes``: (some mode switched, some
+    element has no operating point here)."""
+    switched = impossible = False
+    for grp in groups:
+        mode, none = grp.kind.settled_modes(grp.cols, v[grp.pos], grp.mode)
+        if (mode != grp.mode).any():
+            grp.mode = mode
+            switched = True
+        impossible = impossible or bool(np.any(none))
+    return switched, impossible
 
-    A femto-ohm bar at a node leaves every current there uncertain by far more than microamperes;
-    an ideal diode held conducting by that blur then showed 5.4 uA flowing backwards with its
-    far side dragged down by its full drop (0.7 V), and the self-check passed."""
+
+def _modes_against_shown_currents(bt, model, groups, v, i, bounds):
+    """The currents the solution will show, if their own switching rules would switch some
+    element's mode; None where every mode stands.
+
+    Newton switches modes on the previous iterate's currents; an ideal diode's current is an
+    unknown of the solve and can turn backwards in the very step that settles (a diode shown
+    carrying 2.2 A in reverse at its forward drop). And the shown currents are those of
+    dcnet.analysis.solve.recover_currents (a current the solve cannot resolve taken from
+    Kirchhoff's law at a neighbouring node): a femto-ohm bar at a node leaves every current
+    there uncertain by far more than microamperes, and an ideal diode held conducting by that
+    blur once showed 5.4 uA flowing backwards with its far side dragged down by its full drop.
+    So the final currents, as shown, are put to the kinds' rules once more, each within the
+    larger of its switching tolerance and its round-off bound."""
     from .solve import recover_currents
 
     with np.errstate(all="ignore"):
         shown, sb = recover_currents(model, i, bounds)
-    if not np.all(np.isfinite(shown)) or np.array_equal(shown, i):
+    if not np.all(np.isfinite(shown)):
         return None
+    itol = np.maximum(_switching_tolerance(bt, v, shown), sb)
     for grp in groups:
         pos = grp.pos
-        if not (shown[pos] != i[pos]).any():
-            continue
-        cols = grp.cols
-        _, mode, _ = grp.kind.companion(cols, v[pos], shown[pos], grp.mode, grp.prev, itol=np.maximum(sb[pos], 1e-300))
+        _, mode, _ = grp.kind.companion(grp.cols, v[pos], shown[pos], grp.mode, grp.prev, itol=itol[pos])
         if (mode != grp.mode).any():
             return shown
     return None
