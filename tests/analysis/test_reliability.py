@@ -652,3 +652,43 @@ def test_a_current_loop_on_one_node_does_not_widen_that_nodes_balance():
             total += i if a == node else (-i if b == node else 0.0)
             meet += abs(i) if node in (a, b) else 0.0
         assert abs(total) <= 1e-6 * meet + 1e-9
+
+
+# --- a settled point must obey every element's own law ------------------------------------------
+
+_CP_LOAD_IN_A_DIODE_LOOP = """\
+cable E0 n4 n4 length=858406.2624962847m size=65538.83197543563mm2
+load E1 n3 n2 power=1.1W
+fuse E2 n2 n2 rating=198839.0518036179A r=151407.72568841785Ohm
+source E3 n3 n0 emf=806648.6708985643V
+load E4 n0 n3 current=1.5A
+diode E5 n0 n1 drop=1.1641932953473983V r=735121.111416587Ohm
+diode E6 n2 n4 drop=1.0937621688359165V
+cable E7 n2 n1 length=0.2m size=670231.210631035mm2
+source E8 n3 n4 emf=0.99999V r=366761.43915966764Ohm imax=132023.2012069436A
+cell E9 n2 n2 emf=6.103515625e-05V r=826766.4626915965Ohm
+load E10 n4 n2 power=750961.4212610202W
+supply E11 n0 n1 current=517083.88745449524A
+cable E12 n2 n0 length=477190.0700040184m size=892695.6340849791mm2
+ground n0
+"""
+
+
+def test_a_settled_point_obeys_the_constant_power_and_diode_laws_or_is_refused():
+    # found by the fuzz campaign: Newton settled the 751 kW load E10 at -1.09 V (its companion
+    # linearised at a positive floor) in a loop with the ideal diode E6, and the answer showed
+    # E10 drawing 13 GA (14 GW); with that fixed, E6 was next shown carrying 2.2 A backwards at
+    # its forward drop. The laws, checked here on whatever is shown: a running constant-power
+    # load has V I = P with V > 0; an ideal diode carries current only forwards, and only at its
+    # drop. (E10 cannot run here at all: E8 behind 367 kOhm delivers at most V^2 / 4r, some
+    # 449 kW at 811 kV, less than 751 kW, the maximum power theorem.)
+    assert 811.4e3**2 / (4 * 366761.43915966764) < 750961.4212610202
+    try:
+        sol = dcnet.parse(_CP_LOAD_IN_A_DIODE_LOOP).solve()
+    except (NumericalError, NoOperatingPointError, dcnet.errors.ConvergenceError):
+        return
+    for name, p in (("E1", 1.1), ("E10", 750961.4212610202)):
+        v, i = sol.voltage(name), sol.current(name)
+        assert i == 0 or (v > 0 and v * i == pytest.approx(p, rel=1e-6))
+    v6, i6 = sol.voltage("E6"), sol.current("E6")
+    assert i6 >= -1e-9 and (i6 <= 1e-9 or v6 == pytest.approx(1.0937621688359165, rel=1e-9))
