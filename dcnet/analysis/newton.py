@@ -198,12 +198,9 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
             # from everything on (diodes conducting, constant-power loads linearised at the
             # largest EMF), within the EMFs; from far above, Newton would find the load's unstable
             # high-voltage point on the current source, or the leak's
-            model = _all_on(bt, groups, scale)
-            if model is not None:
-                system = _assemble(model, shunt)
-                x, factor = _try_solve(system)
-                if np.all(np.isfinite(x)):
-                    pot, v, i = currents(model, system, x, model.g, model.c)
+            on = _all_on_point(bt, groups, scale, shunt)
+            if on is not None:
+                pot, v, i = on
             pot = np.clip(pot, -clamp[1], clamp[1])
             v = pot[bt.a] - pot[bt.b]
     else:
@@ -244,20 +241,17 @@ def _iterate(bt, groups, start, scale, history, phase, shunt=0.0, max_iter=MAX_I
             # voltage); otherwise hold the iterate within the bound
             if not restarted:
                 restarted = True
-                on = _all_on(bt, groups, scale)
+                on = _all_on_point(bt, groups, scale, shunt)
                 if on is not None:
-                    sys_on = _assemble(on, shunt)
-                    x_on, _ = _try_solve(sys_on)
-                    if np.all(np.isfinite(x_on)):
-                        pot, v, i = currents(on, sys_on, x_on, on.g, on.c)
-                        if np.isfinite(clamp[0]):
-                            pot = np.clip(pot, -clamp[0], clamp[0])
-                        else:
-                            pot = np.clip(pot, -max(clamp[1], bt.max_emf), max(clamp[1], bt.max_emf))
-                        v = pot[bt.a] - pot[bt.b]
-                        switching = 0
-                        history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": -1})
-                        continue
+                    pot, v, i = on
+                    if np.isfinite(clamp[0]):
+                        pot = np.clip(pot, -clamp[0], clamp[0])
+                    else:
+                        pot = np.clip(pot, -max(clamp[1], bt.max_emf), max(clamp[1], bt.max_emf))
+                    v = pot[bt.a] - pot[bt.b]
+                    switching = 0
+                    history.append({"phase": phase, "scale": scale, "iteration": it, "step_V": float("nan"), "residual_A": float("nan"), "alpha": 0.0, "modes_changed": -1})
+                    continue
             if np.isfinite(clamp[0]):
                 pot_new = np.clip(pot_new, -clamp[0], clamp[0])
         res_old = _residual(bt, model, v, _exact(bt, model, groups, v, np.where(model.is_voltage, i_model, model.g * v + model.c)))
@@ -334,6 +328,21 @@ def _modes_against_shown_currents(bt, model, groups, v, i, bounds):
         if (mode != grp.mode).any():
             return shown
     return None
+
+
+def _all_on_point(bt: BranchTable, groups: list[_Group], scale: float, shunt: float):
+    """(potentials, voltages, currents) of the model with everything on (``_all_on``), or None
+    where there is nothing to turn on or its solve fails."""
+    from .solve import currents
+
+    model = _all_on(bt, groups, scale)
+    if model is None:
+        return None
+    system = _assemble(model, shunt)
+    x, _ = _try_solve(system)
+    if not np.all(np.isfinite(x)):
+        return None
+    return currents(model, system, x, model.g, model.c)
 
 
 def _all_on(bt: BranchTable, groups: list[_Group], scale: float) -> BranchTable | None:
