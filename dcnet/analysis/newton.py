@@ -321,11 +321,15 @@ def _modes_against_shown_currents(bt, model, groups, v, i, bounds):
         shown, sb = recover_currents(model, i, bounds)
     if not np.all(np.isfinite(shown)):
         return None
-    itol = np.maximum(_switching_tolerance(bt, v, shown), sb)
+    # a current reversed by more than its own round-off bound and a millionth of itself is
+    # reversed, however loose the network-wide switching tolerance (a 1e-38 Ohm cable once made
+    # that 5e22 A, and a diode was shown carrying 800 kA backwards)
+    itol = np.maximum(np.minimum(_switching_tolerance(bt, v, shown), LOCAL_ITOL * np.abs(shown)), sb)
+    loop = bt.a == bt.b  # an element on one node carries nothing anywhere: its mode decides nothing
     for grp in groups:
         pos = grp.pos
         _, mode, _ = grp.kind.companion(grp.cols, v[pos], shown[pos], grp.mode, grp.prev, itol=itol[pos])
-        if (mode != grp.mode).any():
+        if ((mode != grp.mode) & ~loop[pos]).any():
             return shown
     return None
 

@@ -692,3 +692,23 @@ def test_a_settled_point_obeys_the_constant_power_and_diode_laws_or_is_refused()
         assert i == 0 or (v > 0 and v * i == pytest.approx(p, rel=1e-6))
     v6, i6 = sol.voltage("E6"), sol.current("E6")
     assert i6 >= -1e-9 and (i6 <= 1e-9 or v6 == pytest.approx(1.0937621688359165, rel=1e-9))
+
+
+def test_a_diode_is_never_shown_carrying_current_backwards_however_stiff_its_neighbour():
+    # found by the fuzz campaign (a mutation of bench/fuzz_seeds/faults/current-loop-one-node.dcn):
+    # a cable 1e-30 m long (1.9e-38 Ohm) made the network-wide switching tolerance some 5e22 A,
+    # so the ideal diode E5 stayed "conducting" while Kirchhoff's law gave it 800 kA *backwards*.
+    # The law checked here on whatever is shown: an ideal diode carries current only forwards,
+    # and only at its drop; a constant-power load that runs has V I = P with V > 0. (The 250 kW
+    # load FZCP14 sits across that cable, where no power can reach it: a refusal is right.)
+    path = Path(__file__).resolve().parents[2] / "bench" / "fuzz_seeds" / "faults" / "current-loop-one-node.dcn"
+    text = path.read_text(encoding="utf-8").replace("length=1.4m", "length=1e-30m") + "load FZL20 n0 n2 power=600W vmin=10.5V\n"
+    try:
+        sol = dcnet.parse(text).solve()
+    except (NumericalError, NoOperatingPointError, dcnet.errors.ConvergenceError):
+        return
+    for name in ("E5", "E7"):
+        assert sol.current(name) >= -1e-9 * max(1.0, float(np.abs(sol.i).max()))
+    for name, p in (("FZCP14", 249999.75), ("FZL20", 600.0)):
+        v, i = sol.voltage(name), sol.current(name)
+        assert i == 0 or (v > 0 and v * i == pytest.approx(p, rel=1e-6))
