@@ -187,3 +187,15 @@ def test_self_loop_resistor_is_a_warning_not_an_error():
     sol = dcnet.parse("\n".join(BASE + ["resistor R3 pos pos r=1Ohm", "ground gnd"])).solve()
     assert sol.current("R3") == 0.0
     assert any("R3" in w for w in sol.warnings)
+
+
+def test_elements_on_one_node_are_shown_carrying_nothing_as_the_warning_says():
+    # found by the fuzz campaign: a constant-current load and a supply with both ends on one node
+    # were shown "drawing 299 kA" beside the warning that they carry no current. Reference: the
+    # rest of the circuit alone, a 12 V cell behind 0.1 Ohm into 6 Ohm: 12 / 6.1 A (loop rule)
+    text = "cell B p 0 emf=12V r=0.1Ohm\nload L p 0 r=6Ohm\nload C p p current=5A\nsupply S 0 0 current=2A\ndiode D p p drop=0.7V r=1Ohm\nground 0\n"
+    sol = dcnet.parse(text).solve()
+    for name in ("C", "S", "D"):
+        assert sol.current(name) == 0.0
+    assert sol.current("L") == pytest.approx(12 / 6.1, rel=1e-12)
+    assert any("carry no current" in w and "C" in w for w in sol.warnings)

@@ -358,7 +358,7 @@ def solve_batch(bt: BranchTable, g, c, e, *, sparse: SparsePattern | None = None
     end = np.abs(_leaving(bt.a, bt.b, n, i))
     meet = BOUND_EPS * _incident(bt.a, bt.b, n, np.abs(i))
     bounds = bounds + np.minimum(end[:, bt.a], end[:, bt.b]) + np.maximum(meet[:, bt.a], meet[:, bt.b])
-    i = np.where(np.abs(i) <= bounds, 0.0, i)
+    i = np.where((np.abs(i) <= bounds) | (bt.a == bt.b), 0.0, i)  # an element on one node carries nothing (solve._finish)
     bal.pop("_nodes")
     sol = BatchSolution(pot, v, i, bal, (A if sparse is None else mats, sparse, layout))
     sol.bounds = bounds
