@@ -133,11 +133,10 @@ def _local_itol(bt: BranchTable, i: np.ndarray, itol_all: float) -> np.ndarray:
     currents of the other elements at its quieter node (``LOCAL_ITOL`` of them), and never
     more loosely than the network-wide figure.
     """
-    n = bt.n_nodes
+    from .solve import _incident
+
     mag = np.abs(np.nan_to_num(i, nan=0.0, posinf=0.0, neginf=0.0))
-    meet = np.zeros(n)
-    np.add.at(meet, bt.a, mag)
-    np.add.at(meet, bt.b, mag)
+    meet = _incident(bt.a, bt.b, bt.n_nodes, mag)
     other = np.minimum(meet[bt.a] - mag, meet[bt.b] - mag)
     local = LOCAL_ITOL * np.maximum(other, 0.0)
     return np.minimum(itol_all, np.maximum(local, 1e-12 * itol_all))
@@ -313,8 +312,9 @@ def _modes_against_shown_currents(bt, model, groups, v, i, bounds):
     Kirchhoff's law at a neighbouring node): a femto-ohm bar at a node leaves every current
     there uncertain by far more than microamperes, and an ideal diode held conducting by that
     blur once showed 5.4 uA flowing backwards with its far side dragged down by its full drop.
-    So the final currents, as shown, are put to the kinds' rules once more, each within the
-    larger of its switching tolerance and its round-off bound."""
+    So the final currents, as shown, are put to the kinds' rules once more: a current counts as
+    reversed beyond its own round-off bound and beyond the smaller of its switching tolerance
+    and a millionth of itself."""
     from .solve import recover_currents
 
     with np.errstate(all="ignore"):

@@ -270,15 +270,22 @@ def current_bounds(bt: BranchTable, system: System, factor, x: np.ndarray, pot: 
     unknown. ``floor`` (the measured Kirchhoff residual) is added to every bound: a current below
     what the solve balances to cannot be told from zero.
     """
-    from .mna import bound_rhs
-
     n = bt.n_elements
     if system.size == 0:
         return np.full(n, floor)
+    W = _bound_columns(system, factor)
+    return _bounds_from(bt, system.row_of_node, system.n_node_rows, system.vbranch, x, system.z, W, pot, bt.g, bt.c) + floor
+
+
+def _bound_columns(system: System, factor) -> np.ndarray:
+    """The solutions of the bound right-hand sides (dcnet.analysis.mna.bound_rhs): kept by the
+    factorisation when the solve computed them, else solved here."""
+    from .mna import bound_rhs
+
     W = getattr(factor, "bound_columns", None)
     if W is None:
         W = np.asarray(factor.solve(bound_rhs(system.A, system.n_node_rows, system.z))).reshape(system.size, 3)
-    return _bounds_from(bt, system.row_of_node, system.n_node_rows, system.vbranch, x, system.z, W, pot, bt.g, bt.c) + floor
+    return W
 
 
 def voltage_bounds(bt: BranchTable, system: System, factor, x: np.ndarray, pot: np.ndarray) -> np.ndarray:
@@ -287,14 +294,10 @@ def voltage_bounds(bt: BranchTable, system: System, factor, x: np.ndarray, pot: 
     (the solve adds what it measured: the refinement step and the voltage rows' residual). An
     ideal link's 1 pV beside 400 kA is round-off, not a voltage: a check that weighs a voltage
     (a source absorbing power) allows for it."""
-    from .mna import bound_rhs
-
     if system.size == 0:
         return np.zeros(bt.n_elements)
-    W = getattr(factor, "bound_columns", None)
-    if W is None:
-        W = np.asarray(factor.solve(bound_rhs(system.A, system.n_node_rows, system.z))).reshape(system.size, 3)
-    dv = _potential_bounds(bt, system.row_of_node, system.n_node_rows, x, W)
+    W = _bound_columns(system, factor)
+    dv = _potential_bounds(bt, system.row_of_node, _unknown_bounds(system.n_node_rows, x, W))
     return dv[bt.a] + dv[bt.b] + BOUND_EPS * (np.abs(pot[bt.a]) + np.abs(pot[bt.b]))
 
 
@@ -304,8 +307,7 @@ def _unknown_bounds(N, x, W) -> np.ndarray:
     return BOUND_EPS * (np.abs(W[:, 0]) * xv + np.abs(W[:, 1]) * xi + np.abs(W[:, 2]))
 
 
-def _potential_bounds(bt, rows, N, x, W) -> np.ndarray:
-    dx = _unknown_bounds(N, x, W)
+def _potential_bounds(bt, rows, dx) -> np.ndarray:
     dv = np.zeros(bt.n_nodes)
     mask = rows >= 0
     dv[mask] = dx[rows[mask]]
@@ -315,7 +317,7 @@ def _potential_bounds(bt, rows, N, x, W) -> np.ndarray:
 def _bounds_from(bt, rows, N, vb, x, z, W, pot, g, c) -> np.ndarray:
     """Element current bounds from the bound columns W (unknowns x 3), for one sample."""
     dx = _unknown_bounds(N, x, W)
-    dv = _potential_bounds(bt, rows, N, x, W)
+    dv = _potential_bounds(bt, rows, dx)
     pa, pb = np.abs(pot[bt.a]), np.abs(pot[bt.b])
     ga, ca = np.abs(g), np.abs(c)
     bound = ga * (dv[bt.a] + dv[bt.b]) + BOUND_EPS * (ga * (pa + pb) + ca)
@@ -536,16 +538,11 @@ def _check_refinement(bt, system, factor, x, pot, i, g, c, balance, bounds) -> N
     dx = np.asarray(factor.solve(r), dtype=float)
     if not np.all(np.isfinite(dx)):
         raise NumericalError("the solution does not verify: one step of iterative refinement does not give a finite correction")
-    from .mna import bound_rhs
-
     N = system.n_node_rows
-    W = getattr(factor, "bound_columns", None)
-    if W is None:
-        W = np.asarray(factor.solve(bound_rhs(system.A, N, system.z))).reshape(system.size, 3)
+    W = _bound_columns(system, factor)
     xv = float(np.abs(x[:N]).max(initial=0.0))
-    xi = float(np.abs(x[N:]).max(initial=0.0))
     zn = float(np.abs(system.z).max(initial=0.0))
-    xbound = BOUND_EPS * (np.abs(W[:, 0]) * xv + np.abs(W[:, 1]) * xi + np.abs(W[:, 2]))
+    xbound = _unknown_bounds(N, x, W)
     # the potentials' own scale, at least the EMFs and what the source currents make across the conductances
     gmax = float(np.abs(g[~bt.is_voltage]).max(initial=0.0))
     vmax = max(xv, bt.max_emf, zn / gmax if gmax > 0 else 0.0)

@@ -44,7 +44,7 @@ class OneSample(SampleLookups):
         self.g, self.c, self.e = bt.g[None, :], bt.c[None, :], bt.e[None, :]
         self.is_voltage = bt.is_voltage
         self.bounds = sol.current_bounds[None, :]
-        self.vbounds = getattr(sol, "voltage_bounds", np.zeros(len(sol.i)))[None, :]
+        self.vbounds = sol.voltage_bounds[None, :]
 
     def value(self, name: str, key: str, default=None):
         return self.netlist.element(name).values.get(key, default)

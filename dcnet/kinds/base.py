@@ -198,8 +198,8 @@ class Kind:
     def settled_modes(self, cols, v: np.ndarray, mode: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """At a point where Newton has settled: (the modes, where no operating point of the
         element lies at this voltage). A kind switches a mode that has a successor (Newton
-        goes on from there) and marks one that has none (the point is refused as settled, and
-        the failure names the element). By default every mode stands."""
+        goes on from there) and marks one that has none (the point is not accepted as an
+        answer). By default every mode stands."""
         return mode, np.zeros(len(mode), dtype=bool)
 
     def exact_current(self, cols, v: np.ndarray, i: np.ndarray, mode: np.ndarray) -> np.ndarray:
