@@ -63,8 +63,8 @@ _ending = False
 def _unraisable(hook):
     """A hook for exceptions Python cannot raise (in a finalizer, a weakref callback): a SIGTERM
     or Ctrl-C that lands there is swallowed and its traceback printed ("Exception ignored in"),
-    about one folder run in five. Print nothing for it, and deliver the signal again (unless the
-    run is already ending), so it reaches the program where it can unwind."""
+    about one folder run in five under load. Print nothing for it, and deliver the signal again
+    (unless the run is already ending), so it reaches the program where it can unwind."""
 
     def handle(unraisable):
         exc = unraisable.exc_value
@@ -72,8 +72,13 @@ def _unraisable(hook):
             if not _ending:
                 import os
                 import signal
+                import threading
 
-                os.kill(os.getpid(), signal.SIGTERM if isinstance(exc, Terminated) else signal.SIGINT)
+                # from another thread, a moment later: sent from here it would be raised inside
+                # this hook, which is no better a place than the finalizer
+                again = threading.Timer(0.01, os.kill, (os.getpid(), signal.SIGTERM if isinstance(exc, Terminated) else signal.SIGINT))
+                again.daemon = True
+                again.start()
             return
         hook(unraisable)
 
